@@ -1,0 +1,31 @@
+# Set-up and everyday commands. Every target creates the virtual environment first if needed.
+PY ?= python3
+VENV := .venv
+BIN := $(VENV)/bin
+STAMP := $(VENV)/.installed
+
+.PHONY: setup test test-slow test-all lint bench demo clean
+
+$(STAMP): pyproject.toml
+	$(PY) -m venv $(VENV)
+	$(BIN)/pip install --quiet --upgrade pip
+	# The CPU build of torch must come first: an unpinned torch pulls a multi-GB GPU build.
+	$(BIN)/pip install --quiet torch==2.13.0
+	$(BIN)/pip install --quiet -e ".[all,dev]"
+	touch $(STAMP)
+
+setup: $(STAMP)
+
+test: $(STAMP)
+	$(BIN)/python -m pytest -q
+
+test-slow: $(STAMP)
+	$(BIN)/python -m pytest -q -m slow
+
+test-all: test test-slow
+
+lint: $(STAMP)
+	$(BIN)/ruff check src tests benchmarks examples conf
+
+clean:
+	rm -rf $(VENV) build dist src/*.egg-info .cache

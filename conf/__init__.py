@@ -1,0 +1,1 @@
+"""Hydra configuration groups shipped with loopzoo."""

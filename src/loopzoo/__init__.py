@@ -1,0 +1,13 @@
+"""loopzoo: interchangeable recurrent topologies behind one module interface.
+
+    import loopzoo
+    model = loopzoo.create("stacked", input_size=3, output_size=2, hidden_size=64)
+    y, state = model(x)          # x: (B, T, 3) -> y: (B, T, 2)
+"""
+
+from loopzoo import tasks
+from loopzoo.topologies import available, create
+
+__version__ = "0.1.0"
+
+__all__ = ["available", "create", "tasks", "__version__"]
