@@ -4,7 +4,7 @@ VENV := .venv
 BIN := $(VENV)/bin
 STAMP := $(VENV)/.installed
 
-.PHONY: setup test test-slow test-all lint bench demo clean
+.PHONY: setup demo test test-slow test-all lint clean
 
 $(STAMP): pyproject.toml
 	$(PY) -m venv $(VENV)
@@ -15,6 +15,11 @@ $(STAMP): pyproject.toml
 	touch $(STAMP)
 
 setup: $(STAMP)
+
+# The main job on the built-in defaults: the quick comparison, then its report.
+demo: $(STAMP)
+	$(BIN)/loopzoo sweep suite=quick out=runs/quick
+	$(BIN)/loopzoo report runs/quick
 
 test: $(STAMP)
 	$(BIN)/python -m pytest -q
