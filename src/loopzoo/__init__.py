@@ -6,8 +6,9 @@
 """
 
 from loopzoo import tasks
+from loopzoo.artifacts import load, save
 from loopzoo.topologies import available, create
 
 __version__ = "0.1.0"
 
-__all__ = ["available", "create", "tasks", "__version__"]
+__all__ = ["available", "create", "load", "save", "tasks", "__version__"]

@@ -1,0 +1,297 @@
+"""Production artifacts: a trained module as safetensors weights plus a JSON description.
+
+An artifact is a directory::
+
+    artifact/
+      weights.safetensors   every tensor of ``model.state_dict()`` (safetensors: no code, no pickle)
+      model.json            format tag and version, topology name, constructor options,
+                            loopzoo version, SHA-256 of the weights file, optional metadata
+
+``load`` rebuilds the module with ``loopzoo.create(topology, **options)`` and checks every tensor
+against it; it never unpickles anything from an artifact. It also reads a torch / Lightning
+checkpoint file, through ``torch.load(weights_only=True)`` only (see ``load``).
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import os
+import pickle
+from collections.abc import Mapping
+from pathlib import Path
+from typing import Any
+
+import torch
+from safetensors import SafetensorError
+from safetensors.torch import load as safetensors_load
+from safetensors.torch import save as safetensors_save
+
+from loopzoo import _io
+from loopzoo.topologies import TOPOLOGIES, create
+
+__all__ = [
+    "ArtifactError",
+    "ARTIFACT_FORMAT",
+    "ARTIFACT_VERSION",
+    "WEIGHTS_FILE",
+    "DESCRIPTION_FILE",
+    "save",
+    "load",
+    "read_description",
+]
+
+ARTIFACT_FORMAT = "loopzoo.artifact"
+ARTIFACT_VERSION = 1
+WEIGHTS_FILE = "weights.safetensors"
+DESCRIPTION_FILE = "model.json"
+
+# Where a harness checkpoint may carry the architecture (see DEVELOPERS.md "Production path").
+_CHECKPOINT_KEY = "loopzoo"
+
+
+class ArtifactError(ValueError):
+    """An artifact or checkpoint that cannot be loaded: missing, corrupt, truncated, mismatched."""
+
+
+def save(
+    model: torch.nn.Module,
+    directory: str | os.PathLike[str],
+    metadata: Mapping[str, Any] | None = None,
+) -> Path:
+    """Write ``model`` as an artifact directory and return its path.
+
+    ``metadata`` (task, metrics, run id, ...) must be JSON-serialisable with finite numbers; it is
+    stored as given under ``"metadata"`` in ``model.json``. Both files are written atomically,
+    weights first, so a directory with a ``model.json`` always has the matching weights.
+
+    Example::
+
+        model = loopzoo.create("hidden-feedback", input_size=3, output_size=1, hidden_size=32)
+        loopzoo.save(model, "runs/pump/artifact", metadata={"task": "pump-vibration"})
+        same = loopzoo.load("runs/pump/artifact")
+    """
+    topology = getattr(model, "topology", None)
+    options = getattr(model, "options", None)
+    if not isinstance(topology, str) or not isinstance(options, Mapping):
+        raise TypeError(
+            "save expects a loopzoo module with `topology` (str) and `options` (dict); "
+            f"got {type(model).__name__} with topology={topology!r}"
+        )
+    if metadata is not None and not isinstance(metadata, Mapping):
+        raise TypeError(f"metadata must be a dict or None, got {type(metadata).__name__}")
+    tensors = _state_tensors(model)
+    description = {
+        "format": ARTIFACT_FORMAT,
+        "version": ARTIFACT_VERSION,
+        "topology": topology,
+        "options": _json_checked("options", dict(options)),
+        "loopzoo_version": _loopzoo_version(),
+        "tensors": {
+            name: {"shape": list(t.shape), "dtype": _dtype_name(t.dtype)}
+            for name, t in tensors.items()
+        },
+        "metadata": _json_checked("metadata", dict(metadata or {})),
+    }
+    weights = safetensors_save(tensors)
+    description["weights_sha256"] = hashlib.sha256(weights).hexdigest()
+    target = Path(directory)
+    _io.atomic_write_bytes(target / WEIGHTS_FILE, weights)
+    _io.atomic_write_json(target / DESCRIPTION_FILE, description)
+    return target
+
+
+def read_description(directory: str | os.PathLike[str]) -> dict[str, Any]:
+    """The checked contents of an artifact's ``model.json`` (topology, options, metadata, ...)."""
+    path = Path(directory) / DESCRIPTION_FILE
+    if not Path(directory).is_dir():
+        raise ArtifactError(f"artifact directory {str(directory)!r} does not exist")
+    if not path.is_file():
+        raise ArtifactError(f"artifact {str(directory)!r} has no {DESCRIPTION_FILE}")
+    try:
+        description = json.loads(path.read_text(encoding="utf-8"))
+    except (UnicodeDecodeError, json.JSONDecodeError) as error:
+        raise ArtifactError(f"{path}: not valid UTF-8 JSON ({error}); is it truncated?") from None
+    if not isinstance(description, dict):
+        raise ArtifactError(f"{path}: expected a JSON object, got {type(description).__name__}")
+    if description.get("format") != ARTIFACT_FORMAT:
+        raise ArtifactError(
+            f"{path}: field 'format' is {description.get('format')!r}; "
+            f"expected {ARTIFACT_FORMAT!r}"
+        )
+    version = description.get("version")
+    if type(version) is not int or not 1 <= version <= ARTIFACT_VERSION:
+        raise ArtifactError(
+            f"{path}: field 'version' is {version!r}; this loopzoo reads versions "
+            f"1..{ARTIFACT_VERSION}"
+        )
+    for field, kind in (
+        ("topology", str),
+        ("options", dict),
+        ("tensors", dict),
+        ("weights_sha256", str),
+        ("metadata", dict),
+    ):
+        if not isinstance(description.get(field), kind):
+            raise ArtifactError(
+                f"{path}: field {field!r} is {description.get(field)!r}; expected a {kind.__name__}"
+            )
+    return description
+
+
+def load(path: str | os.PathLike[str]) -> torch.nn.Module:
+    """Rebuild the module saved at ``path`` in eval mode, after checking every file and tensor.
+
+    ``path`` is an artifact directory written by ``save``, or a torch checkpoint file (a Lightning
+    ``.ckpt`` or ``torch.save`` file) read with ``torch.load(weights_only=True)``, which refuses
+    pickled code. Such a checkpoint must hold ``state_dict`` and ``{"loopzoo": {"topology": ...,
+    "options": {...}}}`` (or the same two keys in ``hyper_parameters``); the state dict may carry
+    one common key prefix (e.g. ``model.`` from a LightningModule attribute).
+
+    Raises ``ArtifactError`` (a ``ValueError``) naming the file, field and what was expected.
+
+    Example::
+
+        model = loopzoo.load("runs/pump/artifact")
+        y, state = model(x)
+    """
+    source = Path(path)
+    if source.is_dir():
+        return _load_artifact(source)
+    if source.is_file():
+        return _load_checkpoint(source)
+    raise ArtifactError(f"{str(path)!r} is neither an artifact directory nor a checkpoint file")
+
+
+def _load_artifact(directory: Path) -> torch.nn.Module:
+    description = read_description(directory)
+    model = _build(description["topology"], description["options"], directory / DESCRIPTION_FILE)
+    weights_path = directory / WEIGHTS_FILE
+    if not weights_path.is_file():
+        raise ArtifactError(f"artifact {str(directory)!r} has no {WEIGHTS_FILE}")
+    weights = weights_path.read_bytes()
+    if hashlib.sha256(weights).hexdigest() != description["weights_sha256"]:
+        raise ArtifactError(
+            f"{weights_path}: SHA-256 does not match 'weights_sha256' in {DESCRIPTION_FILE}; "
+            "the file is corrupted, truncated or from another artifact"
+        )
+    try:
+        tensors = safetensors_load(weights)
+    except (SafetensorError, ValueError) as error:
+        raise ArtifactError(f"{weights_path}: not a valid safetensors file ({error})") from None
+    _fill(model, tensors, weights_path)
+    return model
+
+
+def _load_checkpoint(path: Path) -> torch.nn.Module:
+    try:
+        checkpoint = torch.load(path, map_location="cpu", weights_only=True)
+    except pickle.UnpicklingError as error:
+        raise ArtifactError(
+            f"{path}: refused by torch.load(weights_only=True); the file holds objects other "
+            f"than tensors and plain containers, which loopzoo never unpickles ({error})"
+        ) from None
+    except (RuntimeError, EOFError, OSError, ValueError) as error:
+        raise ArtifactError(f"{path}: not a readable torch checkpoint ({error})") from None
+    if not isinstance(checkpoint, dict) or not isinstance(checkpoint.get("state_dict"), dict):
+        raise ArtifactError(f"{path}: expected a checkpoint dict with a 'state_dict' entry")
+    spec = checkpoint.get(_CHECKPOINT_KEY)
+    if not isinstance(spec, dict):
+        spec = checkpoint.get("hyper_parameters")
+    if not isinstance(spec, dict) or not isinstance(spec.get("topology"), str):
+        raise ArtifactError(
+            f"{path}: no architecture found; expected checkpoint['{_CHECKPOINT_KEY}'] or "
+            "checkpoint['hyper_parameters'] with 'topology' (str) and 'options' (dict)"
+        )
+    options = spec.get("options")
+    if not isinstance(options, dict):
+        raise ArtifactError(f"{path}: field 'options' is {options!r}; expected a dict")
+    model = _build(spec["topology"], options, path)
+    tensors = _strip_common_prefix(checkpoint["state_dict"], set(model.state_dict()))
+    _fill(model, tensors, path)
+    return model
+
+
+def _build(topology: str, options: dict[str, Any], source: Path) -> torch.nn.Module:
+    try:
+        TOPOLOGIES.get(topology)
+    except (TypeError, ValueError) as error:
+        raise ArtifactError(f"{source}: field 'topology': {error}") from None
+    try:
+        return create(topology, **options)
+    except (TypeError, ValueError) as error:
+        raise ArtifactError(
+            f"{source}: topology {topology!r} refused the stored 'options' {options!r}: {error}"
+        ) from None
+
+
+def _fill(model: torch.nn.Module, tensors: Mapping[str, Any], source: Path) -> None:
+    """Check names, shapes, dtypes and finiteness of ``tensors`` against ``model``, then load."""
+    expected = model.state_dict()
+    missing = sorted(set(expected) - set(tensors))
+    extra = sorted(set(tensors) - set(expected))
+    if missing or extra:
+        raise ArtifactError(
+            f"{source}: tensors do not match topology {model.topology!r}; "
+            f"missing {missing or 'none'}, unexpected {extra or 'none'}"
+        )
+    for name, reference in expected.items():
+        tensor = tensors[name]
+        if not isinstance(tensor, torch.Tensor):
+            kind = type(tensor).__name__
+            raise ArtifactError(f"{source}: entry {name!r} is a {kind}, not a tensor")
+        if tensor.shape != reference.shape or tensor.dtype != reference.dtype:
+            raise ArtifactError(
+                f"{source}: tensor {name!r} is {_dtype_name(tensor.dtype)}{list(tensor.shape)}; "
+                f"the model expects {_dtype_name(reference.dtype)}{list(reference.shape)}"
+            )
+        if tensor.is_floating_point() and not bool(torch.isfinite(tensor).all()):
+            raise ArtifactError(f"{source}: tensor {name!r} contains NaN or infinite values")
+    model.load_state_dict(dict(tensors), strict=True)
+    model.eval()
+
+
+def _strip_common_prefix(state: dict[str, Any], wanted: set[str]) -> dict[str, Any]:
+    """Drop the one key prefix (``model.`` etc.) under which a wrapper stored the tensors."""
+    if set(state) == wanted or not wanted:
+        return state
+    probe = next(iter(sorted(wanted)))
+    for key in state:
+        if key.endswith("." + probe):
+            prefix = key[: -len(probe)]
+            if all(prefix + name in state for name in wanted):
+                return {k[len(prefix):]: v for k, v in state.items() if k.startswith(prefix)}
+    return state
+
+
+def _state_tensors(model: torch.nn.Module) -> dict[str, torch.Tensor]:
+    tensors = {}
+    for name, tensor in model.state_dict().items():
+        if tensor.is_floating_point() and not bool(torch.isfinite(tensor).all()):
+            raise ValueError(
+                f"tensor {name!r} of the model contains NaN or infinite values; "
+                "a diverged model is not saved as an artifact"
+            )
+        # Clones: safetensors refuses tensors that share storage (tied or viewed weights).
+        tensors[name] = tensor.detach().to("cpu").contiguous().clone()
+    return tensors
+
+
+def _json_checked(field: str, value: dict[str, Any]) -> dict[str, Any]:
+    try:
+        return json.loads(json.dumps(value, allow_nan=False))
+    except (TypeError, ValueError) as error:
+        raise ValueError(
+            f"{field} must be JSON-serialisable with finite numbers (str, int, float, bool, "
+            f"None, lists, dicts): {error}"
+        ) from None
+
+
+def _dtype_name(dtype: torch.dtype) -> str:
+    return str(dtype).removeprefix("torch.")
+
+
+def _loopzoo_version() -> str:
+    from loopzoo import __version__
+
+    return __version__
