@@ -1,14 +1,32 @@
-"""The task registry: ``available`` and ``create``."""
+"""Shared tasks: synthetic probes, open datasets that installed packages ship, the user's files.
+
+    import loopzoo
+    loopzoo.tasks.available()                     # registered task names
+    task = loopzoo.tasks.create("adding", seed=0, length=100)
+    split = task.split("train")                   # .x (N, T, I), .y, .mask (N, T), .lengths (N,)
+    task.score(prediction, split)                 # {"mse": ..., ...} in the data's own units
+
+statsmodels and scikit-learn are imported only inside the loaders and baselines that need them.
+"""
 
 from __future__ import annotations
 
 from typing import Any
 
-from loopzoo._registry import Registry
+from loopzoo.tasks import long_lag  # noqa: F401  (importing a task file registers its tasks)
+from loopzoo.tasks._base import SPLITS, ClassificationTask, RegressionTask, Split, Task
+from loopzoo.tasks._catalog import TASKS
 
-__all__ = ["TASKS", "available", "create"]
-
-TASKS: Registry[Any] = Registry("task")
+__all__ = [
+    "SPLITS",
+    "TASKS",
+    "ClassificationTask",
+    "RegressionTask",
+    "Split",
+    "Task",
+    "available",
+    "create",
+]
 
 
 def available() -> list[str]:
@@ -16,6 +34,10 @@ def available() -> list[str]:
     return TASKS.names()
 
 
-def create(name: str, **options: Any) -> Any:
-    """Build the task registered as ``name`` with its options (``seed``, sizes, paths)."""
-    return TASKS.get(name)(**options)
+def create(name: str, seed: int = 0, **options: Any) -> Task:
+    """Build the task registered as ``name``; unknown names and options list the accepted ones.
+
+    Example:
+        >>> task = loopzoo.tasks.create("copy", seed=3, length=200)
+    """
+    return TASKS.get(name)(seed=seed, **options)

@@ -1,0 +1,228 @@
+"""The task base: splits, option handling, scoring on masked positions, the run-record summary.
+
+Symbols in shapes: N sequences, T steps, I input size, O output size, C classes.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import zlib
+from abc import ABC, abstractmethod
+from pathlib import Path
+from typing import Any, ClassVar
+
+import numpy as np
+import torch
+
+from loopzoo.tasks._options import build_options, check_choice, check_seed
+from loopzoo.tasks._scaling import Standardizer
+from loopzoo.tasks._scoring import classification_metrics, regression_metrics
+
+__all__ = [
+    "SPLITS",
+    "ClassificationTask",
+    "RegressionTask",
+    "Split",
+    "Task",
+    "make_split",
+    "one_hot",
+    "sequence_spans",
+    "split_generators",
+]
+
+SPLITS = ("train", "val", "test")
+
+
+@dataclasses.dataclass(frozen=True, eq=False)
+class Split:
+    """One part of a task's data.
+
+    x: (N, T, I) float32 inputs. y: (N, T, O) float32 targets (regression, in scaled units) or
+    (N, T) int64 class ids (classification). mask: (N, T) bool, the scored positions.
+    lengths: (N,) int64 valid lengths; positions at or past a length are padding (zeros, never
+    masked). span: (N, 2) int64, the first and last index in the task's source order (time step,
+    file row, sequence or draw number) that the sequence's inputs and targets read; sequences of
+    different splits never share an index.
+    """
+
+    x: torch.Tensor
+    y: torch.Tensor
+    mask: torch.Tensor
+    lengths: torch.Tensor
+    span: torch.Tensor
+
+    def __post_init__(self) -> None:
+        n, t = self.mask.shape
+        if self.x.shape[:2] != (n, t) or self.y.shape[:2] != (n, t):
+            raise ValueError(f"split tensors disagree: x {tuple(self.x.shape)}, "
+                             f"y {tuple(self.y.shape)}, mask {tuple(self.mask.shape)}")
+        if self.lengths.shape != (n,) or self.span.shape != (n, 2):
+            raise ValueError(f"split lengths {tuple(self.lengths.shape)} / span "
+                             f"{tuple(self.span.shape)} do not match {n} sequences")
+
+    def __len__(self) -> int:
+        return int(self.mask.shape[0])
+
+
+def make_split(x: np.ndarray, y: np.ndarray, mask: np.ndarray, lengths: np.ndarray,
+               span: np.ndarray, classes: bool) -> Split:
+    """Build a Split from numpy arrays with the contract's dtypes."""
+    return Split(
+        x=torch.as_tensor(np.ascontiguousarray(x), dtype=torch.float32),
+        y=torch.as_tensor(np.ascontiguousarray(y), dtype=torch.int64 if classes else torch.float32),
+        mask=torch.as_tensor(np.ascontiguousarray(mask), dtype=torch.bool),
+        lengths=torch.as_tensor(np.ascontiguousarray(lengths), dtype=torch.int64),
+        span=torch.as_tensor(np.ascontiguousarray(span), dtype=torch.int64),
+    )
+
+
+def split_generators(task: str, seed: int) -> dict[str, np.random.Generator]:
+    """One independent random stream per split, so resizing one split leaves the others alone."""
+    root = np.random.SeedSequence([zlib.crc32(task.encode()), seed])
+    return {name: np.random.default_rng(child) for name, child in zip(SPLITS, root.spawn(3),
+                                                                       strict=True)}
+
+
+def sequence_spans(sizes: dict[str, int]) -> dict[str, np.ndarray]:
+    """Spans for generated sequences: one draw number each, numbered train, then val, then test."""
+    spans, start = {}, 0
+    for name in SPLITS:
+        draws = np.arange(start, start + sizes[name], dtype=np.int64)
+        spans[name] = np.stack([draws, draws], axis=1)
+        start += sizes[name]
+    return spans
+
+
+def one_hot(ids: np.ndarray, classes: int) -> np.ndarray:
+    """(...) int ids -> (..., classes) float32 one-hot; negative ids (padding) give all zeros."""
+    encoded = np.zeros((*ids.shape, classes), dtype=np.float32)
+    valid = ids >= 0
+    encoded[valid, ids[valid]] = 1.0
+    return encoded
+
+
+def _jsonable(value: Any) -> Any:
+    if isinstance(value, tuple | list):
+        return [_jsonable(v) for v in value]
+    if isinstance(value, Path):
+        return str(value)
+    return value
+
+
+class Task(ABC):
+    """A dataset with fixed train / val / test splits, its metrics and its classical baselines.
+
+    Subclasses set the class attributes, an ``Options`` dataclass (validated in its
+    ``__post_init__``), ``input_size`` / ``output_size`` in ``__init__``, and implement
+    ``_make_splits``, ``_metrics`` and ``baselines``.
+
+    Example:
+        >>> task = loopzoo.tasks.create("adding", seed=0, length=50)
+        >>> split = task.split("test")
+        >>> task.score(torch.ones_like(split.y), split)["mse"]   # about 1/6
+    """
+
+    name: ClassVar[str]
+    kind: ClassVar[str]
+    metric: ClassVar[str]
+    goal: ClassVar[str]
+    Options: ClassVar[type]
+    # False for fixed records split chronologically: the seed then only seeds the models.
+    seed_changes_data: ClassVar[bool] = True
+
+    input_size: int
+    output_size: int
+
+    def __init__(self, seed: int = 0, **options: Any) -> None:
+        self.seed = check_seed(seed)
+        self.options = build_options(self.Options, self.name, options)
+        self._splits: dict[str, Split] | None = None
+
+    def split(self, name: str) -> Split:
+        """The "train", "val" or "test" part; built once, then cached."""
+        check_choice("split", name, SPLITS)
+        if self._splits is None:
+            self._splits = self._make_splits()
+        return self._splits[name]
+
+    def score(self, prediction: torch.Tensor | np.ndarray, split: Split | str) -> dict[str, float]:
+        """Every metric of the task on ``split``'s masked positions, in the data's own units.
+
+        prediction: (N, T, O) model output, scaled values (regression) or logits (classes).
+        """
+        part = self.split(split) if isinstance(split, str) else split
+        values = torch.as_tensor(prediction)
+        expected = (len(part), part.mask.shape[1], self.output_size)
+        if tuple(values.shape) != expected:
+            raise ValueError(f"prediction must have shape (N, T, output_size) = {expected} for "
+                             f"task {self.name!r}, got {tuple(values.shape)}")
+        if not values.is_floating_point():
+            raise ValueError(f"prediction must be floating point, got {values.dtype}")
+        values = values.detach().to(torch.float64)
+        bad = int((~torch.isfinite(values[part.mask])).sum())
+        if bad:
+            raise ValueError(f"prediction has {bad} non-finite values at scored positions")
+        return self._metrics(values, part)
+
+    @abstractmethod
+    def baselines(self) -> dict[str, dict[str, float]]:
+        """Classical baselines, each scored by ``score`` on the test split."""
+
+    def describe(self) -> dict[str, Any]:
+        """JSON-serialisable options and data facts for the run record."""
+        sizes = {}
+        for name in SPLITS:
+            part = self.split(name)
+            sizes[name] = {"sequences": len(part), "steps": int(part.mask.shape[1]),
+                           "scored_positions": int(part.mask.sum())}
+        options = {f.name: _jsonable(getattr(self.options, f.name))
+                   for f in dataclasses.fields(self.options)}
+        return {"name": self.name, "kind": self.kind, "seed": self.seed, "options": options,
+                "input_size": self.input_size, "output_size": self.output_size,
+                "metric": self.metric, "goal": self.goal, "splits": sizes, **self._facts()}
+
+    def _facts(self) -> dict[str, Any]:
+        """Task-specific data facts for ``describe``."""
+        return {}
+
+    @abstractmethod
+    def _make_splits(self) -> dict[str, Split]:
+        """Build all three splits."""
+
+    @abstractmethod
+    def _metrics(self, prediction: torch.Tensor, split: Split) -> dict[str, float]:
+        """Metrics for a checked float64 prediction."""
+
+
+class RegressionTask(Task):
+    """Targets are real values; errors are reported in data units (``scaler`` inverted).
+
+    Subclasses set ``scaler`` (for the targets) and may set ``horizons`` (one per output).
+    """
+
+    kind = "regression"
+    metric = "mse"
+    goal = "min"
+
+    scaler: Standardizer
+    horizons: tuple[int, ...] | None = None
+
+    def _metrics(self, prediction: torch.Tensor, split: Split) -> dict[str, float]:
+        return regression_metrics(self.scaler.inverse(prediction), self.scaler.inverse(split.y),
+                                  split.mask, self.horizons)
+
+    def score_in_data_units(self, prediction: np.ndarray, split: Split | str) -> dict[str, float]:
+        """``score`` for a prediction given in data units (how the baselines are scored)."""
+        return self.score(torch.as_tensor(self.scaler.transform(prediction)), split)
+
+
+class ClassificationTask(Task):
+    """Targets are class ids; ``next_symbol`` tasks also report bits per character."""
+
+    kind = "classification"
+    metric = "cross_entropy"
+    goal = "min"
+    next_symbol: ClassVar[bool] = False
+
+    def _metrics(self, prediction: torch.Tensor, split: Split) -> dict[str, float]:
+        return classification_metrics(prediction, split.y, split.mask, self.next_symbol)

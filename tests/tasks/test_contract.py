@@ -1,0 +1,157 @@
+"""The task contract (DESIGN.md section 2, DEVELOPERS.md "Tasks"), driven by the registry.
+
+A newly registered task is covered here without new test code; tasks that read a user's file get
+one written by the fixture below.
+"""
+
+import json
+
+import numpy as np
+import pytest
+import torch
+
+import loopzoo
+from loopzoo.tasks import SPLITS
+
+SMALL = {"train_size": 60, "val_size": 20, "test_size": 30}
+# Options that keep each task small in this file; tasks missing here run with their defaults.
+OPTIONS = {
+    "adding": {**SMALL, "length": 20},
+    "copy": {**SMALL, "length": 10},
+}
+
+
+def build(name, seed, files):
+    return loopzoo.tasks.create(name, seed=seed, **OPTIONS.get(name, {}), **files.get(name, {}))
+
+
+@pytest.fixture(scope="module")
+def files(tmp_path_factory):
+    """Options pointing the file-reading tasks at small files of a demo scenario."""
+    folder = tmp_path_factory.mktemp("user-files")
+    return user_files(folder)
+
+
+def user_files(folder):
+    return {}
+
+
+@pytest.fixture(scope="module", params=loopzoo.tasks.available())
+def task_pair(request, files):
+    name = request.param
+    return build(name, 0, files), build(name, 0, files), build(name, 1, files)
+
+
+def test_attributes(task_pair):
+    task = task_pair[0]
+    assert task.name in loopzoo.tasks.available()
+    assert task.kind in ("regression", "classification")
+    assert task.goal in ("min", "max")
+    assert isinstance(task.input_size, int) and task.input_size >= 1
+    assert isinstance(task.output_size, int) and task.output_size >= 1
+    if task.kind == "classification":
+        assert task.output_size >= 2
+
+
+def test_shapes_dtypes_and_masks(task_pair):
+    task = task_pair[0]
+    for name in SPLITS:
+        split = task.split(name)
+        n, t = split.mask.shape
+        assert n >= 1 and t >= 1
+        assert split.x.shape == (n, t, task.input_size) and split.x.dtype == torch.float32
+        if task.kind == "regression":
+            assert split.y.shape == (n, t, task.output_size) and split.y.dtype == torch.float32
+            assert torch.isfinite(split.y).all()
+        else:
+            assert split.y.shape == (n, t) and split.y.dtype == torch.int64
+            assert split.y.min() >= 0 and split.y.max() < task.output_size
+        assert torch.isfinite(split.x).all()
+        assert split.mask.dtype == torch.bool
+        assert split.lengths.shape == (n,) and split.lengths.dtype == torch.int64
+        assert split.lengths.min() >= 1 and split.lengths.max() <= t
+        steps = torch.arange(t)[None, :]
+        padding = steps >= split.lengths[:, None]
+        assert not split.mask[padding].any(), "padding positions must never be scored"
+        assert (split.x[padding] == 0).all(), "padding inputs must be zeros"
+        assert split.mask.any(dim=1).all(), "every sequence needs a scored position"
+        assert task.split(name) is split, "splits are cached"
+
+
+def test_same_seed_same_data_and_other_seed_other_data(task_pair):
+    task, twin, other = task_pair
+    for name in SPLITS:
+        a, b, c = task.split(name), twin.split(name), other.split(name)
+        for field in ("x", "y", "mask", "lengths", "span"):
+            assert torch.equal(getattr(a, field), getattr(b, field)), (name, field)
+        same = a.x.shape == c.x.shape and torch.equal(a.x, c.x) and torch.equal(a.y, c.y)
+        if task.seed_changes_data:
+            assert not same, f"seed 1 gave the same {name} data as seed 0"
+        else:
+            # Chronological splits of a fixed record: the seed only seeds the models.
+            assert same
+
+
+def test_no_leakage_between_splits(task_pair):
+    task = task_pair[0]
+    spans = {name: task.split(name).span for name in SPLITS}
+    for name, span in spans.items():
+        assert (span[:, 0] <= span[:, 1]).all(), name
+    for i, first in enumerate(SPLITS):
+        for second in SPLITS[i + 1 :]:
+            a, b = spans[first], spans[second]
+            if task.seed_changes_data:
+                overlap = np.intersect1d(a[:, 0].numpy(), b[:, 0].numpy())
+                assert overlap.size == 0, (first, second, overlap[:5])
+            else:
+                # Chronological: every index of a later split comes after the earlier split's.
+                assert a[:, 1].max() < b[:, 0].min(), (first, second)
+
+
+def test_score_has_primary_metric_and_baselines_share_keys(task_pair):
+    task = task_pair[0]
+    test = task.split("test")
+    if task.kind == "regression":
+        prediction = torch.zeros(*test.y.shape)
+    else:
+        prediction = torch.zeros(*test.y.shape, task.output_size)
+    scores = task.score(prediction, test)
+    assert task.metric in scores
+    assert all(np.isfinite(v) for v in scores.values())
+    assert task.score(prediction, "test") == scores
+    baselines = task.baselines()
+    assert baselines, "every task has at least one classical baseline"
+    for name, result in baselines.items():
+        assert set(result) == set(scores), name
+        assert all(np.isfinite(v) for v in result.values()), name
+
+
+def test_describe_is_json(task_pair):
+    task = task_pair[0]
+    facts = task.describe()
+    json.dumps(facts, allow_nan=False)
+    assert facts["name"] == task.name and facts["seed"] == 0
+    assert set(facts["splits"]) == set(SPLITS)
+
+
+def test_score_rejects_wrong_shapes_and_nan(task_pair):
+    task = task_pair[0]
+    test = task.split("test")
+    shape = (*test.mask.shape, task.output_size)
+    with pytest.raises(ValueError, match="shape"):
+        task.score(torch.zeros(shape[0], shape[1], shape[2] + 1), test)
+    bad = torch.zeros(shape)
+    bad[test.mask] = float("nan")
+    with pytest.raises(ValueError, match="non-finite"):
+        task.score(bad, test)
+
+
+def test_unknown_names_and_options_are_rejected():
+    with pytest.raises(ValueError, match="available: .*adding"):
+        loopzoo.tasks.create("addding")
+    with pytest.raises(ValueError, match="lenght.*length"):
+        loopzoo.tasks.create("adding", lenght=10)
+    with pytest.raises(ValueError, match="split"):
+        loopzoo.tasks.create("adding", **SMALL).split("training")
+    with pytest.raises(ValueError, match="seed"):
+        loopzoo.tasks.create("adding", seed=-1)
