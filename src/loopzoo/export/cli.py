@@ -1,0 +1,137 @@
+"""``loopzoo export ARTIFACT --format onnx|torch-export --out DIR``: write and check the graphs.
+
+Writes ``DIR/step.<ext>`` (always) and ``DIR/sequence.<ext>`` and
+``DIR/sequence-teacher-forced.<ext>`` where the topology exports them, checks each file against
+the eager module (onnxruntime for ONNX, ``torch.export.load`` for programs) and writes
+``DIR/export.json`` describing every graph: tensor names, dynamic dimensions, the largest error
+seen, or why a graph was not written.
+"""
+
+from __future__ import annotations
+
+import argparse
+import sys
+from pathlib import Path
+from typing import Any
+
+import torch
+
+from loopzoo import _io
+from loopzoo.artifacts import ArtifactError, load
+from loopzoo.export.graphs import graph_spec, graphs_for
+from loopzoo.export.parity import max_error, onnx_runner, program_runner
+from loopzoo.export.writers import FORMATS, SUFFIXES, export_graph
+
+__all__ = ["main", "MANIFEST_FILE", "CHECK_BATCH_SIZES", "CHECK_LENGTHS"]
+
+MANIFEST_FILE = "export.json"
+CHECK_BATCH_SIZES = (1, 3, 8)
+CHECK_LENGTHS = (1, 4, 13)
+_DEFAULT_TOLERANCE = 1e-5  # float32 parity target of the export issue
+
+
+def _parser() -> argparse.ArgumentParser:
+    parser = argparse.ArgumentParser(
+        prog="loopzoo export",
+        description="Export a saved model's step graph (and sequence graphs where possible), "
+        "then check the files against the eager model.",
+    )
+    parser.add_argument("artifact", help="artifact directory (loopzoo.save) or checkpoint file")
+    parser.add_argument("--format", required=True, choices=FORMATS, help="output format")
+    parser.add_argument("--out", required=True, type=Path, help="directory for the graph files")
+    parser.add_argument(
+        "--graph",
+        default="all",
+        help="step, sequence, sequence-teacher-forced, or all (default: every graph that "
+        "exports; a sequence graph that fails is reported and skipped)",
+    )
+    parser.add_argument("--no-check", action="store_true", help="skip the parity check")
+    parser.add_argument(
+        "--tolerance", type=float, default=_DEFAULT_TOLERANCE, help="largest accepted error"
+    )
+    return parser
+
+
+def main(argv: list[str] | None = None) -> int:
+    """Run the export command; 0 on success, 1 if a graph fails to export or check, 2 on bad input.
+
+    Example: ``main(["runs/x/artifact", "--format", "onnx", "--out", "deploy/x"])``.
+    """
+    try:
+        args = _parser().parse_args(argv)
+    except SystemExit as exit_:
+        return int(exit_.code or 0)
+    try:
+        model = load(args.artifact)
+    except ArtifactError as error:
+        print(f"loopzoo export: {error}", file=sys.stderr)
+        return 2
+    available = graphs_for(model)
+    if args.graph != "all" and args.graph not in available:
+        print(
+            f"loopzoo export: --graph {args.graph!r} is not available for topology "
+            f"{model.topology!r}; choose from: all, {', '.join(available)}",
+            file=sys.stderr,
+        )
+        return 2
+    if args.out.exists() and not args.out.is_dir():
+        print(f"loopzoo export: --out {str(args.out)!r} is a file, not a folder", file=sys.stderr)
+        return 2
+    if not args.tolerance > 0:
+        print(f"loopzoo export: --tolerance must be > 0, got {args.tolerance}", file=sys.stderr)
+        return 2
+    wanted = available if args.graph == "all" else [args.graph]
+    manifest: dict[str, Any] = {
+        "format": args.format,
+        "source": str(args.artifact),
+        "topology": model.topology,
+        "options": model.options,
+        "torch_version": torch.__version__,
+        "graphs": {},
+        "not_exported": {},
+    }
+    status = 0
+    for graph in wanted:
+        path = args.out / f"{graph}{SUFFIXES[args.format]}"
+        try:
+            export_graph(model, graph, args.format, path)
+        except Exception as error:  # the exporters raise many unrelated types
+            reason = f"{type(error).__name__}: {str(error).splitlines()[0] if str(error) else ''}"
+            manifest["not_exported"][graph] = reason
+            print(f"loopzoo export: {graph} graph not exported ({reason})", file=sys.stderr)
+            if graph == "step" or args.graph != "all":
+                status = 1
+            continue
+        entry = _describe(model, graph, path)
+        if not args.no_check:
+            runner = onnx_runner(path) if args.format == "onnx" else program_runner(path, graph)
+            error = max_error(model, graph, runner, CHECK_BATCH_SIZES, CHECK_LENGTHS)
+            entry["max_error"] = error
+            entry["checked"] = {"batch_sizes": CHECK_BATCH_SIZES, "lengths": CHECK_LENGTHS}
+            if not error <= args.tolerance:
+                print(
+                    f"loopzoo export: {path} differs from the eager model by {error:.3g} "
+                    f"(tolerance {args.tolerance:g})",
+                    file=sys.stderr,
+                )
+                status = 1
+        manifest["graphs"][graph] = entry
+        print(f"{path}  {_summary(entry)}")
+    _io.atomic_write_json(args.out / MANIFEST_FILE, manifest)
+    return status
+
+
+def _describe(model: torch.nn.Module, graph: str, path: Path) -> dict[str, Any]:
+    spec = graph_spec(model, graph)
+    dynamic = ["batch"] if graph == "step" else ["batch", "time"]
+    return {
+        "file": path.name,
+        "inputs": spec.input_names,
+        "outputs": spec.output_names,
+        "dynamic": dynamic,
+    }
+
+
+def _summary(entry: dict[str, Any]) -> str:
+    checked = f"max error {entry['max_error']:.2g}" if "max_error" in entry else "not checked"
+    return f"inputs {', '.join(entry['inputs'])}; dynamic {', '.join(entry['dynamic'])}; {checked}"
