@@ -1,0 +1,59 @@
+"""A quiet, cheap Lightning Trainer for one training phase, and its process-group clean-up."""
+
+from __future__ import annotations
+
+import logging
+import time
+import warnings
+from pathlib import Path
+from typing import Any
+
+import lightning as L
+import torch.distributed as dist
+
+__all__ = ["ReleaseProcessGroup", "fit_quietly"]
+
+# Settings that keep a run from writing checkpoints, logger folders or summaries it does not need;
+# the user's trainer config is applied on top, so e.g. trainer.logger=true brings a logger back.
+_QUIET = {
+    "logger": False,
+    "enable_checkpointing": False,
+    "enable_model_summary": False,
+    "num_sanity_val_steps": 0,
+    "max_epochs": -1,
+}
+
+_CHATTY_LOGGERS = ("lightning.pytorch.utilities.rank_zero", "lightning.fabric.utilities.rank_zero",
+                   "lightning.pytorch.accelerators.cuda")
+
+
+class ReleaseProcessGroup(L.Callback):
+    """Destroy the gloo process group when a (spawned) DDP fit ends.
+
+    Left alive, it makes the process abort at exit ("terminate called without an active
+    exception", exit code 134) on this stack.
+    """
+
+    def teardown(self, trainer: L.Trainer, pl_module: L.LightningModule, stage: str) -> None:
+        if dist.is_available() and dist.is_initialized():
+            dist.destroy_process_group()
+
+
+def fit_quietly(module: L.LightningModule, loader: Any, trainer_options: dict[str, Any], *,
+                max_steps: int, run_dir: Path) -> float:
+    """Fit ``module`` on ``loader`` for at most ``max_steps`` optimiser steps; wall seconds taken.
+
+    ``trainer_options`` are Lightning Trainer keyword arguments passed through (accelerator,
+    devices, strategy, enable_progress_bar, ...).
+    """
+    for name in _CHATTY_LOGGERS:
+        logging.getLogger(name).setLevel(logging.WARNING)
+    options = {**_QUIET, "default_root_dir": str(run_dir), **trainer_options}
+    begin = time.perf_counter()
+    with warnings.catch_warnings():
+        # Data lives in memory and batches are slices: worker processes would only add cost.
+        warnings.filterwarnings("ignore", message=".*does not have many workers.*")
+        warnings.filterwarnings("ignore", message=".*smaller than the logging interval.*")
+        trainer = L.Trainer(max_steps=max_steps, callbacks=[ReleaseProcessGroup()], **options)
+        trainer.fit(module, train_dataloaders=loader)
+    return time.perf_counter() - begin

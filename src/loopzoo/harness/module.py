@@ -1,0 +1,221 @@
+"""One LightningModule that trains any topology on any task.
+
+Optimisation is manual (``automatic_optimization = False``) for three reasons: truncated BPTT
+needs several optimiser steps per batch with the detached state carried between them (Lightning 2
+has no built-in), the clip rate needs the pre-clipping gradient norm of every step, and a
+non-finite step must stop the run before the optimiser applies it.
+
+Validation runs inside the training step every ``val_every`` optimiser steps on the whole
+validation split, scored by ``task.score`` (a task metric over the full split, not a mean of
+per-batch values). Every DDP rank computes the same score from the same synchronised weights, so
+all ranks take the same early-stopping decision without a collective.
+"""
+
+from __future__ import annotations
+
+import copy
+import math
+import time
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+import lightning as L
+import torch
+
+from loopzoo.harness.evaluation import NonFinitePrediction, SplitScorer, better
+from loopzoo.harness.objectives import masked_loss
+from loopzoo.harness.schedules import TeacherForcingPlan
+from loopzoo.harness.tbptt import chunk_spans, detach_state
+
+__all__ = ["FitState", "SequenceModule"]
+
+
+@dataclass
+class FitState:
+    """What training has done so far; carried across the phases of one run (lr probe, go on)."""
+
+    step: int = 0
+    curve_steps: list[int] = field(default_factory=list)
+    curve_train: list[float] = field(default_factory=list)
+    curve_val: list[float] = field(default_factory=list)
+    best_val: float | None = None
+    best_step: int | None = None
+    best_weights: dict[str, torch.Tensor] | None = None
+    stale_validations: int = 0
+    early_stopped: bool = False
+    diverged_at: int | None = None
+    reason: str | None = None
+    clipped_steps: int = 0
+    val_seconds: float = 0.0
+    loss_sum: float = 0.0
+    loss_count: int = 0
+
+    @property
+    def diverged(self) -> bool:
+        return self.diverged_at is not None
+
+
+class SequenceModule(L.LightningModule):
+    """Trains ``model`` on ``task`` batches ``(x, y, mask)`` with masked losses.
+
+    Each optimiser step: forward a chunk (the whole sequence without TBPTT) from the carried state,
+    ``masked_loss``, backward, clip the gradient norm to ``grad_clip_norm`` (``None``: measure
+    only), stop as diverged on a non-finite norm, step, detach the state. Feedback topologies get
+    ``targets`` and ``teacher_forcing=plan.probability(step)``.
+
+    Example::
+
+        module = SequenceModule(model, task, scorer, optimizer=partial(torch.optim.Adam, lr=3e-3),
+                                grad_clip_norm=1.0, plan=TeacherForcingPlan("teacher_forcing"),
+                                tbptt_chunk=None, val_every=50, primary="mse", goal="min",
+                                select_group="plain")
+        module.phase(end_step=600, patience=4); L.Trainer(max_steps=600).fit(module, loader)
+    """
+
+    def __init__(
+        self,
+        model: torch.nn.Module,
+        task: Any,
+        scorer: SplitScorer,
+        *,
+        optimizer: Any,
+        grad_clip_norm: float | None,
+        plan: TeacherForcingPlan,
+        tbptt_chunk: int | None,
+        val_every: int,
+        primary: str,
+        goal: str,
+        select_group: str,
+    ) -> None:
+        super().__init__()
+        self.automatic_optimization = False
+        self.model = model
+        self.kind = task.kind
+        self.scorer = scorer
+        self.make_optimizer = optimizer
+        self.grad_clip_norm = grad_clip_norm
+        self.plan = plan
+        self.tbptt_chunk = tbptt_chunk
+        self.val_every = val_every
+        self.primary = primary
+        self.goal = goal
+        self.select_group = select_group
+        self.feeds_back = bool(getattr(model, "feeds_back_output", False))
+        self.fit_state = FitState()
+        self.optimizer: torch.optim.Optimizer | None = None
+        self.end_step = 0
+        self.patience: int | None = None
+        self.handoff: Path | None = None
+
+    def phase(self, *, end_step: int, patience: int | None, handoff: Path | None = None) -> None:
+        """Set the next fit to train until ``end_step`` total steps, early stopping after
+        ``patience`` stale validations (``None``: never). ``handoff`` is where a spawned rank 0
+        leaves the fit state for the launching process."""
+        self.end_step = end_step
+        self.patience = patience
+        self.handoff = handoff
+        self.fit_state.stale_validations = 0
+        self.fit_state.early_stopped = False
+
+    def configure_optimizers(self) -> torch.optim.Optimizer:
+        # Kept across fits so that continuing after the lr probe keeps the optimiser's moments.
+        if self.optimizer is None:
+            self.optimizer = self.make_optimizer(self.model.parameters())
+        return self.optimizer
+
+    def training_step(self, batch: tuple[torch.Tensor, ...], batch_idx: int) -> None:
+        state = self.fit_state
+        if state.diverged or state.early_stopped or state.step >= self.end_step:
+            self.trainer.should_stop = True
+            return
+        x, y, mask = batch
+        optimizer = self.optimizers()
+        teacher_forcing = self.plan.probability(state.step) if self.feeds_back else None
+        carried = None
+        for start, stop in chunk_spans(x.shape[1], self.tbptt_chunk):
+            extra = {}
+            if self.feeds_back:
+                extra = {"targets": y[:, start:stop], "teacher_forcing": teacher_forcing}
+            if carried is None:
+                prediction, carried = self.model(x[:, start:stop], **extra)
+            else:
+                prediction, carried = self.model(x[:, start:stop], carried, **extra)
+            loss = masked_loss(self.kind, prediction, y[:, start:stop], mask[:, start:stop])
+            optimizer.zero_grad(set_to_none=True)
+            self.manual_backward(loss)
+            if not self._clip_and_check(loss):
+                self.trainer.should_stop = True
+                return
+            optimizer.step()
+            carried = detach_state(carried)
+            state.step += 1
+            state.loss_sum += float(loss.detach())
+            state.loss_count += 1
+            if state.step % self.val_every == 0 or state.step >= self.end_step:
+                self.validate()
+            if state.diverged or state.early_stopped or state.step >= self.end_step:
+                self.trainer.should_stop = True
+                return
+
+    def _clip_and_check(self, loss: torch.Tensor) -> bool:
+        """Clip, count clipping, and mark divergence; True when the step may be applied."""
+        limit = math.inf if self.grad_clip_norm is None else self.grad_clip_norm
+        norm = float(torch.nn.utils.clip_grad_norm_(self.model.parameters(), limit))
+        # Under DDP the norm is of all-reduced gradients, so every rank decides alike; a rank's
+        # own loss is checked only when there is no other rank to fall out of step with.
+        finite = math.isfinite(norm) and (self.trainer.world_size > 1 or bool(loss.isfinite()))
+        if not finite:
+            step = self.fit_state.step + 1
+            self.fit_state.diverged_at = step
+            self.fit_state.reason = f"non-finite loss or gradient at step {step}"
+            return False
+        if norm > limit:
+            self.fit_state.clipped_steps += 1
+        return True
+
+    def validate(self) -> None:
+        """Score the validation split, extend the curves, keep the best weights, count patience."""
+        state = self.fit_state
+        begin = time.perf_counter()
+        try:
+            value = self.scorer.score(self.model)[self.select_group][self.primary]
+        except NonFinitePrediction:
+            value = math.nan
+        state.val_seconds += time.perf_counter() - begin
+        train_loss = state.loss_sum / state.loss_count if state.loss_count else math.nan
+        state.loss_sum, state.loss_count = 0.0, 0
+        state.curve_steps.append(state.step)
+        state.curve_train.append(train_loss)
+        state.curve_val.append(value)
+        if not math.isfinite(value):
+            state.diverged_at = state.step
+            state.reason = f"non-finite validation {self.primary} at step {state.step}"
+            return
+        self.log("val", value, prog_bar=True, on_step=True, on_epoch=False)
+        if better(value, state.best_val, self.goal):
+            state.best_val, state.best_step = value, state.step
+            state.best_weights = copy.deepcopy(self.model.state_dict())
+            state.stale_validations = 0
+        else:
+            state.stale_validations += 1
+            if self.patience is not None and state.stale_validations >= self.patience:
+                state.early_stopped = True
+
+    def on_fit_end(self) -> None:
+        # ddp_spawn ships only the weights back to the launching process; the fit state and the
+        # optimiser's moments travel through a file written by rank 0.
+        if self.handoff is not None and self.trainer.world_size > 1 and self.trainer.is_global_zero:
+            torch.save(
+                {"fit_state": self.fit_state, "optimizer": self.optimizer.state_dict()},
+                self.handoff,
+            )
+
+    def take_handoff(self) -> None:
+        """In the launching process: adopt the fit state a spawned rank 0 left behind."""
+        if self.handoff is None or not self.handoff.exists():
+            return
+        carried = torch.load(self.handoff, weights_only=False)
+        self.fit_state = carried["fit_state"]
+        self.configure_optimizers().load_state_dict(carried["optimizer"])
+        self.handoff.unlink()

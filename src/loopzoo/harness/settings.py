@@ -1,0 +1,177 @@
+"""The training settings of one run, read from the composed config and checked before training."""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Mapping
+from dataclasses import dataclass
+from typing import Any
+
+from omegaconf import DictConfig, OmegaConf
+
+from loopzoo.harness.errors import ConfigError
+
+__all__ = ["FEEDBACK_SELECTIONS", "RunSettings", "read_settings"]
+
+FEEDBACK_SELECTIONS = ("free_running", "teacher_forced")
+
+# Trainer arguments the training engine sets itself; passing them would break its protocol.
+_RESERVED_TRAINER_KEYS = {
+    "gradient_clip_val": "optim.grad_clip_norm",
+    "gradient_clip_algorithm": "optim.grad_clip_norm",
+    "max_epochs": "trainer.max_steps",
+    "accumulate_grad_batches": "task.batch_size",
+    "val_check_interval": "protocol.val_every",
+    "check_val_every_n_epoch": "protocol.val_every",
+    "callbacks": "nothing (the engine owns its callbacks)",
+}
+
+
+@dataclass(frozen=True)
+class RunSettings:
+    """Everything the training engine reads from a config, validated."""
+
+    model: str
+    model_options: dict[str, Any]
+    feedback: dict[str, Any] | None
+    task: str
+    task_options: dict[str, Any]
+    batch_size: int
+    budget: int
+    seed: int
+    suite: str | None
+    max_steps: int
+    trainer: dict[str, Any]
+    optimizer: str
+    lr: float
+    weight_decay: float
+    grad_clip_norm: float | None
+    optimizer_extra: dict[str, Any]
+    lr_grid: list[float] | None
+    lr_probe_fraction: float
+    val_every: int
+    patience: int | None
+    tbptt_chunk: int | None
+    feedback_select: str
+
+
+def _section(cfg: Mapping[str, Any], name: str) -> dict[str, Any]:
+    value = cfg.get(name)
+    if not isinstance(value, Mapping):
+        raise ConfigError(f"config section {name!r} is missing or not a mapping, got {value!r}")
+    return dict(value)
+
+
+def _positive_int(field: str, value: Any, *, allow_none: bool = False) -> int | None:
+    if value is None and allow_none:
+        return None
+    if isinstance(value, bool) or not isinstance(value, int) or value < 1:
+        accepted = "a positive integer" + (" or null" if allow_none else "")
+        raise ConfigError(f"{field} = {value!r} is invalid; accepted: {accepted}")
+    return value
+
+
+def _real(field: str, value: Any, *, low: float, low_open: bool, allow_none: bool = False,
+          high: float = math.inf) -> float | None:
+    if value is None and allow_none:
+        return None
+    ok = isinstance(value, (int, float)) and not isinstance(value, bool) and math.isfinite(value)
+    ok = ok and (value > low if low_open else value >= low) and value <= high
+    if not ok:
+        bound = f"{'>' if low_open else '>='} {low}"
+        bound += f" and <= {high}" if high < math.inf else ""
+        accepted = f"a finite number {bound}" + (" or null" if allow_none else "")
+        raise ConfigError(f"{field} = {value!r} is invalid; accepted: {accepted}")
+    return float(value)
+
+
+def read_settings(cfg: DictConfig | Mapping[str, Any]) -> RunSettings:
+    """Check and read a composed run config; raises ConfigError naming the field and value.
+
+    Example::
+
+        settings = read_settings(cfg); settings.lr_grid   # [0.001, 0.003, 0.01]
+    """
+    if isinstance(cfg, DictConfig):
+        cfg = OmegaConf.to_container(cfg, resolve=True)
+    model, task = _section(cfg, "model"), _section(cfg, "task")
+    trainer, optim = _section(cfg, "trainer"), _section(cfg, "optim")
+    protocol = _section(cfg, "protocol")
+
+    for field, value in (("model.name", model.get("name")), ("task.name", task.get("name"))):
+        if not isinstance(value, str) or not value:
+            raise ConfigError(f"{field} = {value!r} is invalid; accepted: a registered name")
+    feedback = model.get("feedback")
+    if feedback is not None and not isinstance(feedback, Mapping):
+        raise ConfigError(f"model.feedback = {feedback!r} is invalid; accepted: a mapping or null")
+    seed = cfg.get("seed")
+    if isinstance(seed, bool) or not isinstance(seed, int) or seed < 0:
+        raise ConfigError(f"seed = {seed!r} is invalid; accepted: a non-negative integer")
+
+    max_steps = _positive_int("trainer.max_steps", trainer.pop("max_steps", None))
+    for key, instead in _RESERVED_TRAINER_KEYS.items():
+        if key in trainer:
+            raise ConfigError(f"trainer.{key} is set by the training engine; use {instead}")
+
+    optim = dict(optim)
+    optimizer = optim.pop("name", None)
+    lr = _real("optim.lr", optim.pop("lr", None), low=0.0, low_open=True)
+    weight_decay = _real("optim.weight_decay", optim.pop("weight_decay", 0.0), low=0.0,
+                         low_open=False)
+    clip = _real("optim.grad_clip_norm", optim.pop("grad_clip_norm", None), low=0.0,
+                 low_open=True, allow_none=True)
+
+    protocol = dict(protocol)
+    grid = protocol.pop("lr_grid", None)
+    if grid is not None:
+        if not isinstance(grid, list) or not grid:
+            raise ConfigError(f"protocol.lr_grid = {grid!r} is invalid; accepted: a non-empty "
+                              "list of positive numbers or null")
+        grid = [_real(f"protocol.lr_grid[{i}]", v, low=0.0, low_open=True)
+                for i, v in enumerate(grid)]
+        if len(set(grid)) != len(grid):
+            raise ConfigError(f"protocol.lr_grid = {grid!r} repeats a value")
+    probe = _real("protocol.lr_probe_fraction", protocol.pop("lr_probe_fraction", 0.25),
+                  low=0.0, low_open=True, high=1.0)
+    val_every = _positive_int("protocol.val_every", protocol.pop("val_every", 50))
+    patience = _positive_int("protocol.patience", protocol.pop("patience", None), allow_none=True)
+    chunk = _positive_int("protocol.tbptt_chunk", protocol.pop("tbptt_chunk", None),
+                          allow_none=True)
+    select = protocol.pop("feedback_select", "free_running")
+    if select not in FEEDBACK_SELECTIONS:
+        raise ConfigError(f"protocol.feedback_select = {select!r} is invalid; accepted: "
+                          f"{', '.join(FEEDBACK_SELECTIONS)}")
+    if protocol:
+        raise ConfigError(f"protocol keys {sorted(protocol)} are unknown; accepted: lr_grid, "
+                          "lr_probe_fraction, val_every, patience, tbptt_chunk, feedback_select")
+
+    options = task.get("options") or {}
+    if not isinstance(options, Mapping):
+        raise ConfigError(f"task.options = {options!r} is invalid; accepted: a mapping")
+    model_options = model.get("options") or {}
+    if not isinstance(model_options, Mapping):
+        raise ConfigError(f"model.options = {model_options!r} is invalid; accepted: a mapping")
+    return RunSettings(
+        model=model["name"],
+        model_options=dict(model_options),
+        feedback=None if feedback is None else dict(feedback),
+        task=task["name"],
+        task_options=dict(options),
+        batch_size=_positive_int("task.batch_size", task.get("batch_size")),
+        budget=_positive_int("task.budget", task.get("budget")),
+        seed=seed,
+        suite=cfg.get("suite"),
+        max_steps=max_steps,
+        trainer=trainer,
+        optimizer=optimizer,
+        lr=lr,
+        weight_decay=weight_decay,
+        grad_clip_norm=clip,
+        optimizer_extra=optim,
+        lr_grid=grid,
+        lr_probe_fraction=probe,
+        val_every=val_every,
+        patience=patience,
+        tbptt_chunk=chunk,
+        feedback_select=select,
+    )

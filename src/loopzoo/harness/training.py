@@ -1,0 +1,345 @@
+"""Train and evaluate one run under the fair protocol, and score a task's classical baselines.
+
+The fair protocol: the hidden width is solved per topology from the task's parameter budget
+(``loopzoo.width_for_budget``), every topology gets the same data, batch and step budget, the
+learning rate is chosen per topology on the validation split, training stops early on validation,
+and the test split is evaluated once, for the chosen rate and the best validation weights.
+
+Choosing the learning rate cheaply: each rate of ``protocol.lr_grid`` trains a short probe of
+``lr_probe_fraction * trainer.max_steps`` steps from the same initial weights, data order and seed;
+the probe with the best validation score is then continued (weights and optimiser moments kept) to
+``trainer.max_steps`` with early stopping. With three rates and a quarter-length probe a run costs
+1.5x one training instead of 3x for full runs per rate, and the continued run is exactly the
+training the chosen rate would have had, since the probes share their first steps' randomness.
+"""
+
+from __future__ import annotations
+
+import copy
+import math
+import platform
+import time
+from datetime import datetime, timezone
+from pathlib import Path
+from typing import Any
+
+import lightning as L
+import torch
+from omegaconf import DictConfig
+
+import loopzoo
+from loopzoo.harness.costs import PeakMemory, step_latency_ms
+from loopzoo.harness.data import training_loader
+from loopzoo.harness.errors import ConfigError
+from loopzoo.harness.evaluation import NonFinitePrediction, SplitScorer
+from loopzoo.harness.lightning_setup import fit_quietly
+from loopzoo.harness.module import SequenceModule
+from loopzoo.harness.optimizers import optimizer_factory
+from loopzoo.harness.schedules import TeacherForcingPlan
+from loopzoo.harness.settings import RunSettings, read_settings
+
+__all__ = ["baseline_records", "train_and_evaluate"]
+
+_REACH_BATCH = 32
+_REACH_MAX_LAG = 200
+
+
+def _now() -> str:
+    return datetime.now(timezone.utc).strftime("%Y-%m-%dT%H:%M:%SZ")
+
+
+def _finite(value: Any) -> Any:
+    """JSON-safe numbers: NaN and infinities become null, recursively."""
+    if isinstance(value, float):
+        return value if math.isfinite(value) else None
+    if isinstance(value, dict):
+        return {k: _finite(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [_finite(v) for v in value]
+    return value
+
+
+def _versions() -> dict[str, Any]:
+    return {
+        "python": platform.python_version(),
+        "torch": torch.__version__,
+        "lightning": L.__version__,
+        "loopzoo": loopzoo.__version__,
+        "torch_threads": torch.get_num_threads(),
+    }
+
+
+def _build_task(settings: RunSettings) -> Any:
+    try:
+        return loopzoo.tasks.create(settings.task, seed=settings.seed, **settings.task_options)
+    except (ValueError, TypeError, KeyError) as error:
+        raise ConfigError(f"task {settings.task!r}: {error}") from error
+
+
+def _build_model(settings: RunSettings, task: Any) -> torch.nn.Module:
+    sizes = {"input_size": task.input_size, "output_size": task.output_size}
+    try:
+        hidden = loopzoo.width_for_budget(
+            settings.model, params=settings.budget, **sizes, **settings.model_options
+        )
+    except (ValueError, TypeError) as error:
+        raise ConfigError(
+            f"task.budget = {settings.budget} cannot be met by model {settings.model!r} with "
+            f"options {settings.model_options}: {error}"
+        ) from error
+    L.seed_everything(settings.seed, verbose=False)
+    try:
+        return loopzoo.create(
+            settings.model, hidden_size=hidden, **sizes, **settings.model_options
+        )
+    except (ValueError, TypeError) as error:
+        raise ConfigError(f"model {settings.model!r}: {error}") from error
+
+
+def _feedback_plan(settings: RunSettings, model: torch.nn.Module) -> TeacherForcingPlan:
+    feeds_back = bool(getattr(model, "feeds_back_output", False))
+    if settings.feedback is not None and not feeds_back:
+        raise ConfigError(
+            f"model.feedback = {settings.feedback} is set but model {settings.model!r} does not "
+            "feed back its output; set model.feedback=null"
+        )
+    try:
+        return TeacherForcingPlan.from_options(settings.feedback, total_steps=settings.max_steps)
+    except ValueError as error:
+        raise ConfigError(str(error)) from error
+
+
+def _check_protocol(settings: RunSettings, train_rows: int) -> None:
+    if settings.batch_size > train_rows:
+        raise ConfigError(
+            f"task.batch_size = {settings.batch_size} exceeds the {train_rows} training sequences "
+            f"of task {settings.task!r}; accepted: 1..{train_rows}"
+        )
+
+
+def _gradient_reach(model: torch.nn.Module, x: torch.Tensor) -> dict[str, list[float]] | None:
+    try:
+        from loopzoo.diagnostics import gradient_reach
+    except ImportError:
+        return None
+    reach = gradient_reach(model, x, max_lag=min(x.shape[1] - 1, _REACH_MAX_LAG))
+    return dict(reach) if isinstance(reach, dict) else {"norms": [float(v) for v in reach]}
+
+
+class _Run:
+    """One run's protocol state: the task, the initial model, the scorer, the probes."""
+
+    def __init__(self, settings: RunSettings, task: Any, model: torch.nn.Module,
+                 plan: TeacherForcingPlan, run_dir: Path) -> None:
+        self.settings = settings
+        self.task = task
+        self.model = model
+        self.plan = plan
+        self.run_dir = run_dir
+        self.feeds_back = bool(getattr(model, "feeds_back_output", False))
+        self.train, self.val, self.test = (task.split(s) for s in ("train", "val", "test"))
+        _check_protocol(settings, len(self.train.x))
+        self.select_group = settings.feedback_select if self.feeds_back else "plain"
+        self.fit_seconds = 0.0
+        self.total_steps = 0
+        self.val_seconds = 0.0
+
+    def module(self, lr: float) -> SequenceModule:
+        settings = self.settings
+        make = optimizer_factory(settings.optimizer, lr=lr, weight_decay=settings.weight_decay,
+                                 extra=settings.optimizer_extra)
+        return SequenceModule(
+            copy.deepcopy(self.model), self.task,
+            SplitScorer(self.task, self.val, feeds_back=self.feeds_back),
+            optimizer=make, grad_clip_norm=settings.grad_clip_norm, plan=self.plan,
+            tbptt_chunk=settings.tbptt_chunk, val_every=settings.val_every,
+            primary=self.task.metric, goal=self.task.goal, select_group=self.select_group,
+        )
+
+    def fit(self, module: SequenceModule, loader: Any, *, end_step: int,
+            patience: int | None) -> None:
+        before = module.fit_state.step
+        val_before = module.fit_state.val_seconds
+        module.phase(end_step=end_step, patience=patience,
+                     handoff=self.run_dir / ".fit-handoff.pt")
+        self.fit_seconds += fit_quietly(module, loader, self.settings.trainer,
+                                        max_steps=end_step - before, run_dir=self.run_dir)
+        self.total_steps += module.fit_state.step - before
+        self.val_seconds += module.fit_state.val_seconds - val_before
+
+    def choose_and_train(self) -> tuple[SequenceModule, dict[str, Any]]:
+        """Probe every rate of the grid, continue the best; returns it and the ``lr`` record."""
+        settings = self.settings
+        grid = settings.lr_grid or [settings.lr]
+        if len(grid) == 1:
+            L.seed_everything(settings.seed, verbose=False)
+            module = self.module(grid[0])
+            self.fit(module, training_loader(self.train, settings.batch_size, settings.seed),
+                     end_step=settings.max_steps, patience=settings.patience)
+            best = module.fit_state.best_val
+            return module, {"chosen": grid[0], "grid": settings.lr_grid,
+                            "val_by_lr": {str(grid[0]): best}, "probe_steps": None}
+        probe_steps = min(settings.max_steps,
+                          max(settings.val_every, round(settings.lr_probe_fraction
+                                                        * settings.max_steps)))
+        probes: dict[float, tuple[SequenceModule, Any]] = {}
+        for lr in grid:
+            L.seed_everything(settings.seed, verbose=False)
+            module = self.module(lr)
+            loader = training_loader(self.train, settings.batch_size, settings.seed)
+            self.fit(module, loader, end_step=probe_steps, patience=None)
+            probes[lr] = (module, loader)
+        val_by_lr = {str(lr): (None if m.fit_state.diverged else m.fit_state.best_val)
+                     for lr, (m, _) in probes.items()}
+        healthy = [lr for lr, (m, _) in probes.items()
+                   if not m.fit_state.diverged and m.fit_state.best_val is not None]
+        lr_record = {"grid": list(grid), "val_by_lr": val_by_lr, "probe_steps": probe_steps}
+        if not healthy:
+            first = min(probes.values(), key=lambda p: p[0].fit_state.diverged_at or math.inf)[0]
+            return first, {"chosen": None, **lr_record}
+        sign = 1.0 if self.task.goal == "min" else -1.0
+        chosen = min(healthy, key=lambda lr: sign * probes[lr][0].fit_state.best_val)
+        module, loader = probes[chosen]
+        if module.fit_state.step < settings.max_steps:
+            self.fit(module, loader, end_step=settings.max_steps, patience=settings.patience)
+        return module, {"chosen": chosen, **lr_record}
+
+
+def _metrics(groups_val: dict[str, dict[str, float]],
+             groups_test: dict[str, dict[str, float]]) -> dict[str, dict[str, float]]:
+    if "plain" in groups_val:
+        return {"val": groups_val["plain"], "test": groups_test["plain"]}
+    return {
+        "val": groups_val["teacher_forced"], "val_free_running": groups_val["free_running"],
+        "test": groups_test["teacher_forced"], "test_free_running": groups_test["free_running"],
+    }
+
+
+def train_and_evaluate(cfg: DictConfig, run_dir: Path) -> dict[str, Any]:
+    """Train the configured topology on the configured task and return the record body.
+
+    The body holds every record field except ``schema``, ``run_id`` and ``config`` (added by the
+    records module). Bad configs (unknown names or keys, impossible budgets) raise ConfigError
+    before training; a run that diverges or fails returns ``status`` ``"diverged"`` / ``"failed"``
+    with the ``reason`` instead of raising.
+
+    Example::
+
+        body = train_and_evaluate(cfg, Path("runs/x/runs/adding-gru-s0-..."))
+        body["metrics"]["test"]["mse"]
+    """
+    started, clock = _now(), time.perf_counter()
+    run_dir = Path(run_dir)
+    settings = read_settings(cfg)
+    task = _build_task(settings)
+    model = _build_model(settings, task)
+    plan = _feedback_plan(settings, model)
+    run = _Run(settings, task, model, plan, run_dir)
+    body: dict[str, Any] = {
+        "kind": "model", "status": "ok", "reason": None, "diverged_at_step": None,
+        "model": settings.model, "task": settings.task, "suite": settings.suite,
+        "seed": settings.seed, "params": sum(p.numel() for p in model.parameters()),
+        "budget": settings.budget,
+        "sizes": {"input_size": model.input_size, "output_size": model.output_size,
+                  "hidden_size": model.hidden_size},
+        "versions": _versions(),
+        "primary": {"name": task.metric, "goal": task.goal},
+        "metrics": None, "lr": None, "curves": None, "cost": None, "gradient_reach": None,
+        "feedback": None, "started": started, "finished": None,
+    }
+    if run.feeds_back:
+        body["feedback"] = {**plan.describe(), "fed_back": model.options.get("fed_back"),
+                            "selected_on": run.select_group}
+    run_dir.mkdir(parents=True, exist_ok=True)
+    try:
+        _train(run, body)
+    except Exception as error:  # noqa: BLE001 - a failing run is recorded, never raised
+        body.update(status="failed", reason=f"{type(error).__name__}: {error}")
+    body["finished"] = _now()
+    if body["cost"] is not None:
+        body["cost"]["wall_seconds"] = time.perf_counter() - clock
+    return _finite(body)
+
+
+def _train(run: _Run, body: dict[str, Any]) -> None:
+    reach_x = run.val.x[:_REACH_BATCH]
+    reach_init = _gradient_reach(run.model, reach_x)
+    memory = PeakMemory()
+    memory.start()
+    module, body["lr"] = run.choose_and_train()
+    peak_mb = memory.peak_mb()
+    state = module.fit_state
+    body["curves"] = {"step": state.curve_steps, "train_loss": state.curve_train,
+                      "val": state.curve_val}
+    train_seconds = max(run.fit_seconds - run.val_seconds, 0.0)
+    body["cost"] = {
+        "wall_seconds": None, "train_seconds": train_seconds, "steps": state.step,
+        "steps_with_probes": run.total_steps,
+        "train_ms_per_step": 1000.0 * train_seconds / max(run.total_steps, 1),
+        "clip_rate": state.clipped_steps / max(state.step, 1),
+        "peak_memory_mb": peak_mb, "peak_memory_start_mb": memory.start_mb,
+        "peak_memory_method": memory.method,
+        "step_latency_ms": None, "batched_step_latency_ms": None, "batched_batch_size": None,
+    }
+    if state.diverged:
+        body.update(status="diverged", reason=state.reason, diverged_at_step=state.diverged_at)
+        return
+    model = module.model
+    model.load_state_dict(state.best_weights)
+    body["lr"]["best_step"] = state.best_step
+    body["lr"]["early_stopped"] = state.early_stopped
+    try:
+        val = SplitScorer(run.task, run.val, feeds_back=run.feeds_back).score(model)
+        test = SplitScorer(run.task, run.test, feeds_back=run.feeds_back).score(model)
+    except NonFinitePrediction as error:
+        body.update(status="diverged", reason=f"{error} (after training, best weights)")
+        return
+    body["metrics"] = _metrics(val, test)
+    batched = min(run.settings.batch_size, len(run.val.x))
+    body["cost"].update(
+        step_latency_ms=step_latency_ms(model, run.val.x[:1]),
+        batched_step_latency_ms=step_latency_ms(model, run.val.x[:batched]),
+        batched_batch_size=batched,
+    )
+    reach_final = _gradient_reach(model, reach_x)
+    if reach_init is not None and reach_final is not None:
+        body["gradient_reach"] = _reach_record(reach_init, reach_final)
+
+
+def _reach_record(init: dict[str, Any], final: dict[str, Any]) -> dict[str, Any]:
+    def normalised(norms: list[float]) -> list[float]:
+        first = norms[0] if norms and norms[0] else 1.0
+        return [n / first for n in norms]
+
+    init_raw, final_raw = list(init["norms"]), list(final["norms"])
+    return {"lags": list(range(len(init_raw))), "init": normalised(init_raw),
+            "final": normalised(final_raw), "init_raw": init_raw, "final_raw": final_raw}
+
+
+def baseline_records(cfg: DictConfig) -> list[dict[str, Any]]:
+    """One record body per classical baseline of the configured task (``task.baselines()``).
+
+    Each has ``kind`` ``"baseline"``, ``model`` the baseline's name, test metrics only, and null
+    parameters, cost, curves and gradient reach.
+
+    Example::
+
+        [b["model"] for b in baseline_records(cfg)]   # e.g. ["predict-mean", ...]
+    """
+    started = _now()
+    settings = read_settings(cfg)
+    task = _build_task(settings)
+    records = []
+    for name, metrics in task.baselines().items():
+        records.append(_finite({
+            "kind": "baseline", "status": "ok", "reason": None, "diverged_at_step": None,
+            "model": name, "task": settings.task, "suite": settings.suite, "seed": settings.seed,
+            "params": None, "budget": settings.budget,
+            "sizes": {"input_size": task.input_size, "output_size": task.output_size,
+                      "hidden_size": None},
+            "versions": _versions(), "primary": {"name": task.metric, "goal": task.goal},
+            "metrics": {"test": {k: float(v) for k, v in metrics.items()}},
+            "lr": None, "curves": None, "cost": None, "gradient_reach": None, "feedback": None,
+            "started": started, "finished": _now(),
+        }))
+    return records
