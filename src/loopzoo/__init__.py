@@ -7,8 +7,8 @@
 
 from loopzoo import tasks
 from loopzoo.artifacts import load, save
-from loopzoo.topologies import available, create
+from loopzoo.topologies import available, create, width_for_budget
 
 __version__ = "0.1.0"
 
-__all__ = ["available", "create", "load", "save", "tasks", "__version__"]
+__all__ = ["available", "create", "load", "save", "tasks", "width_for_budget", "__version__"]

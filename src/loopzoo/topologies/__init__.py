@@ -1,14 +1,25 @@
-"""The topology registry: ``available``, ``create`` and ``width_for_budget``."""
+"""The topology zoo: ``available``, ``create``, ``width_for_budget`` and ``parameter_count``.
+
+Importing a topology module registers it; every module follows the interface of
+``loopzoo.topologies._base.RecurrentTopology``.
+"""
 
 from __future__ import annotations
 
 from typing import Any
 
-from loopzoo._registry import Registry
+from loopzoo.topologies import hidden_feedback, stacked, torch_gated  # noqa: F401  (registers)
+from loopzoo.topologies._base import TOPOLOGIES, RecurrentTopology
+from loopzoo.topologies._budget import parameter_count, width_for_budget
 
-__all__ = ["TOPOLOGIES", "available", "create"]
-
-TOPOLOGIES: Registry[Any] = Registry("topology")
+__all__ = [
+    "TOPOLOGIES",
+    "RecurrentTopology",
+    "available",
+    "create",
+    "parameter_count",
+    "width_for_budget",
+]
 
 
 def available() -> list[str]:
@@ -16,6 +27,14 @@ def available() -> list[str]:
     return TOPOLOGIES.names()
 
 
-def create(name: str, **options: Any) -> Any:
-    """Build the topology registered as ``name`` with its constructor options."""
-    return TOPOLOGIES.get(name)(**options)
+def create(name: str, **sizes_and_options: Any) -> RecurrentTopology:
+    """Build the topology registered as ``name``.
+
+    Keyword arguments: input_size, output_size, hidden_size (positive ints) and the topology's
+    own options; unknown options are refused with the accepted list.
+
+    >>> model = create("hidden-feedback", input_size=3, output_size=2, hidden_size=16)
+    >>> model.topology, model.options["nonlinearity"]
+    ('hidden-feedback', 'tanh')
+    """
+    return TOPOLOGIES.get(name)(**sizes_and_options)

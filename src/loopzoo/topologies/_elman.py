@@ -1,0 +1,155 @@
+"""The shared additive recurrence with a hand-written backward pass, and the layer built on it.
+
+Recurrence (per step t, with u_t = U x_t + b computed for all steps before the loop):
+
+    a_t = u_t + W h_{t-1}
+    h_t = c * h_{t-1} + s * f(a_t)        f = tanh or relu; c = 0 (Elman) or 1 (residual)
+
+and past a sequence's length the state is held: h_t = h_{t-1}. The forward loop runs without
+autograd; the backward pass runs back-propagation through time by hand and forms dL/dW as one
+(H, T*B) x (T*B, H) product after the loop instead of one small product per step.
+"""
+
+from __future__ import annotations
+
+import torch
+from torch import Tensor, nn
+from torch.autograd.function import FunctionCtx, once_differentiable
+
+from loopzoo.topologies._base import project_time_major
+
+__all__ = ["AdditiveRecurrence", "additive_scan"]
+
+
+class _AdditiveScan(torch.autograd.Function):
+    """u (T, B, H), h0 (B, H), W (H, H), valid (T, B, 1) or None -> h (T, B, H)."""
+
+    @staticmethod
+    def forward(  # type: ignore[override]
+        ctx: FunctionCtx,
+        u: Tensor,
+        h0: Tensor,
+        weight_hh: Tensor,
+        valid: Tensor | None,
+        relu: bool,
+        carry: bool,
+        scale: float,
+    ) -> Tensor:
+        steps = u.shape[0]
+        w_t = weight_hh.t()
+        hs = torch.empty_like(u)
+        # Without carry or masking h_t == f(a_t), so one buffer serves both.
+        plain = not carry and valid is None and scale == 1.0
+        zs = hs if plain else torch.empty_like(u)
+        h = h0
+        for t in range(steps):
+            z = torch.addmm(u[t], h, w_t, out=zs[t])
+            if relu:
+                z.relu_()
+            else:
+                z.tanh_()
+            if not plain:
+                new = z * scale if scale != 1.0 else z
+                if carry:
+                    new = new + h
+                if valid is not None:
+                    new = torch.where(valid[t], new, h)
+                hs[t] = new
+            h = hs[t]
+        ctx.save_for_backward(h0, weight_hh, hs, zs, valid)
+        ctx.relu, ctx.carry, ctx.scale = relu, carry, scale
+        return hs
+
+    @staticmethod
+    @once_differentiable
+    def backward(ctx: FunctionCtx, grad_hs: Tensor):  # type: ignore[override]
+        h0, weight_hh, hs, zs, valid = ctx.saved_tensors
+        relu, carry, scale = ctx.relu, ctx.carry, ctx.scale
+        steps = hs.shape[0]
+        grad_a = torch.empty_like(zs)
+        dh = torch.zeros_like(h0)
+        for t in range(steps - 1, -1, -1):
+            dh = dh + grad_hs[t]
+            dz = dh if scale == 1.0 else dh * scale
+            if valid is not None:
+                dz = dz * valid[t]
+            # f'(a) from f(a): tanh' = 1 - tanh^2, relu' = [relu(a) > 0].
+            da = dz * (zs[t] > 0) if relu else dz * (1.0 - zs[t] * zs[t])
+            grad_a[t] = da
+            # The h_{t-1} path that bypasses f: all of dh when carrying or holding past a length.
+            if carry:
+                direct = dh
+            elif valid is not None:
+                direct = dh * (~valid[t])
+            else:
+                direct = None
+            dh = da @ weight_hh if direct is None else torch.addmm(direct, da, weight_hh)
+        grad_w = None
+        if ctx.needs_input_grad[2]:
+            hidden = hs.shape[-1]
+            previous = torch.cat([h0.unsqueeze(0), hs[:-1]])
+            grad_w = grad_a.reshape(-1, hidden).t() @ previous.reshape(-1, hidden)
+        return grad_a, dh, grad_w, None, None, None, None
+
+
+def additive_scan(
+    u: Tensor,
+    h0: Tensor,
+    weight_hh: Tensor,
+    valid: Tensor | None = None,
+    *,
+    nonlinearity: str = "tanh",
+    carry: bool = False,
+    scale: float = 1.0,
+) -> Tensor:
+    """All states of h_t = c h_{t-1} + s f(u_t + W h_{t-1}), time-major.
+
+    u: (T, B, H) input projections (bias included); h0: (B, H); weight_hh: (H, H);
+    valid: (T, B, 1) bool or None. Returns h: (T, B, H), held past each sequence's length.
+
+    >>> h = additive_scan(torch.zeros(5, 2, 3), torch.zeros(2, 3), torch.eye(3))
+    >>> h.shape
+    torch.Size([5, 2, 3])
+    """
+    return _AdditiveScan.apply(
+        u.contiguous(), h0, weight_hh, valid, nonlinearity == "relu", carry, scale
+    )
+
+
+class AdditiveRecurrence(nn.Module):
+    """One layer of h_t = c h_{t-1} + s f(U x_t + W h_{t-1} + b) (c = 0: Elman; c = 1: residual).
+
+    Parameters: weight_ih (H, I), weight_hh (H, H), bias (H,). ``sequence`` takes and returns
+    time-major tensors: (T, B, I) -> (T, B, H).
+    """
+
+    def __init__(
+        self,
+        input_size: int,
+        hidden_size: int,
+        *,
+        nonlinearity: str = "tanh",
+        carry: bool = False,
+        scale: float = 1.0,
+    ) -> None:
+        super().__init__()
+        self.weight_ih = nn.Parameter(torch.empty(hidden_size, input_size))
+        self.weight_hh = nn.Parameter(torch.empty(hidden_size, hidden_size))
+        self.bias = nn.Parameter(torch.empty(hidden_size))
+        self.nonlinearity, self.carry, self.scale = nonlinearity, carry, scale
+
+    def sequence(self, x_tm: Tensor, h0: Tensor, valid_tm: Tensor | None) -> Tensor:
+        """Time-major x (T, B, I), h0 (B, H), valid (T, B, 1) or None -> h (T, B, H)."""
+        u = project_time_major(x_tm, self.weight_ih, self.bias, time_major=True)
+        return additive_scan(
+            u, h0, self.weight_hh, valid_tm,
+            nonlinearity=self.nonlinearity, carry=self.carry, scale=self.scale,
+        )
+
+    def step(self, x_t: Tensor, h: Tensor) -> Tensor:
+        """One step: x_t (B, I), h (B, H) -> h (B, H)."""
+        a = torch.addmm(self.bias, x_t, self.weight_ih.t()) + h @ self.weight_hh.t()
+        z = torch.relu(a) if self.nonlinearity == "relu" else torch.tanh(a)
+        if self.scale != 1.0:
+            z = z * self.scale
+        return z + h if self.carry else z

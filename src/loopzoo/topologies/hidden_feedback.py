@@ -1,0 +1,61 @@
+"""hidden-feedback: the Elman network (Elman 1990, "Finding Structure in Time").
+
+    h_t = f(U x_t + W h_{t-1} + b)        f = tanh or relu
+    y_t = V h_t + c
+
+Shapes: x (B, T, I), h_t (B, H), y (B, T, O). State: (h,).
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+from torch import Tensor, nn
+
+from loopzoo.topologies._base import (
+    RecurrentTopology,
+    State,
+    batch_first,
+    register,
+    time_major_mask,
+    uniform_init,
+)
+from loopzoo.topologies._elman import AdditiveRecurrence
+from loopzoo.topologies._options import NONLINEARITY
+
+__all__ = ["HiddenFeedback"]
+
+
+@register("hidden-feedback")
+class HiddenFeedback(RecurrentTopology):
+    """Elman network: the hidden state feeds back into itself; a linear readout gives y.
+
+    Options: nonlinearity ('tanh' | 'relu', default 'tanh').
+
+    >>> import loopzoo, torch
+    >>> model = loopzoo.create("hidden-feedback", input_size=3, output_size=2, hidden_size=8)
+    >>> y, (h,) = model(torch.randn(4, 10, 3))
+    >>> y.shape, h.shape
+    (torch.Size([4, 10, 2]), torch.Size([4, 8]))
+    """
+
+    option_specs = {"nonlinearity": NONLINEARITY}
+
+    def __init__(self, **sizes_and_options: Any) -> None:
+        super().__init__(**sizes_and_options)
+        self.cell = AdditiveRecurrence(
+            self.input_size, self.hidden_size, nonlinearity=self.options["nonlinearity"]
+        )
+        self.readout = nn.Linear(self.hidden_size, self.output_size)
+        uniform_init(self, self.hidden_size)
+
+    def state_sizes(self) -> tuple[int, ...]:
+        return (self.hidden_size,)
+
+    def _sequence(self, x, state, valid, targets, teacher_forcing) -> tuple[Tensor, State]:
+        hs = self.cell.sequence(x.transpose(0, 1), state[0], time_major_mask(valid))  # (T, B, H)
+        return batch_first(self.readout(hs)), (hs[-1],)
+
+    def _step(self, x_t: Tensor, state: State) -> tuple[Tensor, State]:
+        h = self.cell.step(x_t, state[0])
+        return self.readout(h), (h,)
