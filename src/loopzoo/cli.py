@@ -1,0 +1,146 @@
+"""The ``loopzoo`` command: list, train, sweep, report, export.
+
+    loopzoo list
+    loopzoo train model=stacked task=adding seed=1 out=runs/try
+    loopzoo sweep suite=quick out=runs/quick
+    loopzoo sweep model=lstm,gru task=copy seed=1,2,3 out=runs/copy
+    loopzoo report runs/quick
+    loopzoo export ...
+
+Hydra overrides (``key=value``; comma lists are swept by ``sweep``) follow the subcommand.
+Bad input exits with code 2 and a one-paragraph message, never a traceback.
+"""
+
+from __future__ import annotations
+
+import sys
+from collections.abc import Callable
+from importlib import import_module, resources
+
+__all__ = ["main", "SUBCOMMANDS"]
+
+USAGE = """usage: loopzoo <command> [key=value ...]
+
+commands:
+  list                      the registered topologies, tasks and suites, one line each
+  train key=value ...       one run (model=, task=, seed=, out=, trainer.max_steps=, optim.lr=, ...)
+  sweep key=a,b ...         a sweep (suite=NAME or comma lists), one record per run, resumable
+  report DIR                report.md / .csv / .html from the records under DIR
+  export ...                export a trained model (loopzoo export --help)
+
+Options of a run: see the config groups under loopzoo/conf (model, task, trainer, optim,
+protocol, suite, hydra/launcher). Example: loopzoo sweep suite=quick out=runs/quick
+"""
+
+
+def _first_line(obj: object) -> str:
+    doc = (getattr(obj, "__doc__", None) or "").strip()
+    return doc.splitlines()[0].rstrip(".") if doc else ""
+
+
+def _suite_line(name: str) -> str:
+    text = resources.files("loopzoo.conf").joinpath("suite", f"{name}.yaml").read_text("utf-8")
+    comments = [
+        line.lstrip("# ").strip()
+        for line in text.splitlines()
+        if line.startswith("#") and "@package" not in line
+    ]
+    return comments[0] if comments else ""
+
+
+def _list(argv: list[str]) -> int:
+    import loopzoo
+    from loopzoo.tasks import TASKS
+    from loopzoo.topologies import TOPOLOGIES
+
+    if argv:
+        return _fail(f"list takes no arguments, got {' '.join(argv)}")
+    folder = resources.files("loopzoo.conf").joinpath("suite")
+    suites = sorted(p.name[: -len(".yaml")] for p in folder.iterdir() if p.name.endswith(".yaml"))
+    sections = [
+        ("topologies (model=)", [(n, _first_line(TOPOLOGIES.get(n))) for n in loopzoo.available()]),
+        ("tasks (task=)", [(n, _first_line(TASKS.get(n))) for n in loopzoo.tasks.available()]),
+        ("suites (suite=)", [(n, _suite_line(n)) for n in suites]),
+    ]
+    for title, rows in sections:
+        print(title)
+        for name, line in rows:
+            print(f"  {name:<18} {line}")
+    return 0
+
+
+def _fail(message: str) -> int:
+    print(f"loopzoo: error: {message}", file=sys.stderr)
+    return 2
+
+
+def _train(argv: list[str]) -> int:
+    from loopzoo.harness.app import run_one
+    from loopzoo.harness.config import compose_job, composer, parse_overrides
+    from loopzoo.harness.records import claim_out_dir, record_path
+
+    swept = [o.input_line for o in parse_overrides(argv) if o.is_sweep_override()]
+    if swept:
+        return _fail(f"train runs one config; use 'loopzoo sweep' for {' '.join(swept)}")
+    with composer():
+        cfg = compose_job(argv)
+    claim_out_dir(cfg.out, cfg.suite)
+    outcome = run_one(cfg)
+    print(f"{outcome.run_id}: {outcome.status} in {outcome.seconds:.1f} s"
+          + (f" ({outcome.reason})" if outcome.reason else ""))
+    print(f"record: {record_path(cfg.out, outcome.run_id)}")
+    return 1 if outcome.status == "failed" else 0
+
+
+def _sweep(argv: list[str]) -> int:
+    from loopzoo.harness.sweep import run_sweep
+
+    return run_sweep(argv)
+
+
+def _delegate(module: str, purpose: str) -> Callable[[list[str]], int]:
+    def run(argv: list[str]) -> int:
+        try:
+            entry = import_module(module).main
+        except (ImportError, AttributeError) as error:
+            return _fail(f"{purpose} is not available in this installation ({module}: {error})")
+        return int(entry(argv) or 0)
+
+    return run
+
+
+SUBCOMMANDS: dict[str, Callable[[list[str]], int]] = {
+    "list": _list,
+    "train": _train,
+    "sweep": _sweep,
+    "report": _delegate("loopzoo.report", "the report"),
+    "export": _delegate("loopzoo.export", "export"),
+}
+
+
+def main(argv: list[str] | None = None) -> int:
+    """Run the ``loopzoo`` command on ``argv`` (default ``sys.argv[1:]``); return the exit code."""
+    from loopzoo._registry import unknown_choice
+
+    argv = list(sys.argv[1:] if argv is None else argv)
+    if not argv or argv[0] in ("-h", "--help", "help"):
+        print(USAGE, end="")
+        return 0 if argv else 2
+    command, rest = argv[0], argv[1:]
+    if command not in SUBCOMMANDS:
+        return _fail(str(unknown_choice("command", command, list(SUBCOMMANDS))))
+    if command in ("train", "sweep") and any(a in ("-h", "--help") for a in rest):
+        print(USAGE, end="")
+        return 0
+    try:
+        return SUBCOMMANDS[command](rest)
+    except ValueError as error:  # ConfigError, OutDirError and the zoo's own argument checks
+        from loopzoo.harness.errors import ConfigError, OutDirError
+
+        if isinstance(error, ConfigError | OutDirError) or command in ("train", "sweep"):
+            return _fail(str(error))
+        raise
+
+
+if __name__ == "__main__":
+    sys.exit(main())

@@ -1,0 +1,174 @@
+"""Run one configured job: skip it if recorded, else train, record, and report progress.
+
+``run_one`` is shared by ``loopzoo train`` (one run in this process) and by the jobs of
+``loopzoo sweep`` (Hydra multirun; ``sweep_job`` is the task function its launcher calls).
+"""
+
+from __future__ import annotations
+
+import json
+import logging
+import shutil
+import time
+import traceback
+from dataclasses import asdict, dataclass
+from pathlib import Path
+from typing import Any
+
+import hydra
+from hydra.core.hydra_config import HydraConfig
+from omegaconf import DictConfig, OmegaConf, open_dict
+
+from loopzoo._io import atomic_write_json, atomic_write_text
+from loopzoo.harness import records, runids, state
+from loopzoo.harness.config import cores, finish_config
+from loopzoo.harness.errors import ConfigError, OutDirError
+
+__all__ = ["Outcome", "run_one", "ensure_baselines", "threads_for_launcher", "sweep_job"]
+
+log = logging.getLogger(__name__)
+
+
+@dataclass(frozen=True)
+class Outcome:
+    """What happened to one job: a record status, "skipped" (already recorded) or "refused"."""
+
+    run_id: str
+    model: str
+    task: str
+    seed: int
+    status: str
+    seconds: float
+    reason: str | None = None
+
+    def line(self) -> str:
+        """``model task seed=S status seconds`` for progress output."""
+        why = f" ({self.reason})" if self.reason and self.status != "ok" else ""
+        return (
+            f"{self.model:<16} {self.task:<10} seed={self.seed:<3} {self.status:<8} "
+            f"{self.seconds:7.1f} s{why}"
+        )
+
+
+def threads_for_launcher(launcher: DictConfig | dict[str, Any] | None) -> int:
+    """Torch threads per run: cores / n_jobs for joblib, cpus_per_task for submitit, else cores."""
+    total = cores()
+    if not launcher:
+        return total
+    n_jobs = launcher.get("n_jobs")
+    if n_jobs is not None:
+        n_jobs = int(n_jobs)
+        # joblib's convention: -1 is all cores, -2 all but one, ...
+        parallel = n_jobs if n_jobs > 0 else max(1, total + 1 + n_jobs)
+        return max(1, total // parallel)
+    cpus = launcher.get("cpus_per_task")
+    return int(cpus) if cpus else total
+
+
+def ensure_baselines(cfg: DictConfig) -> int:
+    """Write the records of the task's classical baselines for this seed, once.
+
+    Returns how many were written now (0 when all exist). Parallel jobs sharing a (task, seed)
+    wait on one lock, so the baselines are computed once.
+    """
+    from loopzoo.harness.training import baseline_records
+
+    out = Path(cfg.out)
+    group = runids.baseline_group(cfg)
+    marker = state.state_dir(out) / "baselines" / f"{group}.json"
+    with state.file_lock(state.state_dir(out) / "locks" / f"baselines-{group}.lock"):
+        if marker.exists():
+            listed = json.loads(marker.read_text(encoding="utf-8"))["run_ids"]
+            if all(records.record_path(out, rid).exists() for rid in listed):
+                return 0
+        config = OmegaConf.to_container(cfg, resolve=True)
+        written = []
+        for body in baseline_records(cfg):
+            rid = runids.baseline_run_id(cfg, body["model"])
+            record = records.make_record(body, run_id=rid, kind="baseline", config=config)
+            records.write_record(out, record)
+            written.append(rid)
+        # The marker comes last: a kill before it only means the baselines are redone.
+        atomic_write_json(marker, {"run_ids": written})
+        return len(written)
+
+
+def _train(cfg: DictConfig, run_dir: Path, started: str) -> dict[str, Any]:
+    """The training engineer's ``train_and_evaluate``; an unexpected error becomes a failed body."""
+    from loopzoo.harness.training import train_and_evaluate
+
+    try:
+        return train_and_evaluate(cfg, run_dir)
+    except ConfigError:
+        raise
+    except Exception as error:  # recorded as failed so the sweep goes on
+        atomic_write_text(run_dir / "error.txt", traceback.format_exc())
+        reason = f"{type(error).__name__}: {error}"
+        return records.failed_body(OmegaConf.to_container(cfg, resolve=True), reason, started)
+
+
+def run_one(cfg: DictConfig, *, threads: int | None = None, sweep: bool = False) -> Outcome:
+    """Run the job ``cfg`` (a ``finish_config`` result) unless its record is kept on rerun.
+
+    Writes ``out/records/<run_id>.json`` atomically and the task's baseline records for the
+    seed. Raises ``ConfigError`` for configs refused before training and ``OutDirError`` for an
+    output directory of another suite or schema. ``sweep`` hides Lightning's progress bar and
+    counts the job in the sweep's progress.
+    """
+    import torch
+
+    out = Path(cfg.out)
+    records.claim_out_dir(out, cfg.suite)
+    torch.set_num_threads(threads or cores())
+    rid = runids.run_id(cfg)
+    tick = time.perf_counter()
+    with state.file_lock(state.state_dir(out) / "locks" / f"{rid}.lock"):
+        kept = records.is_done(out, rid)
+        if kept is not None:
+            status, reason = "skipped", f"recorded {kept['status']}"
+        else:
+            started = records.utc_now()
+            ensure_baselines(cfg)
+            if sweep:
+                cfg = cfg.copy()
+                with open_dict(cfg):
+                    cfg.trainer.enable_progress_bar = False
+            run_dir = out / "runs" / rid
+            shutil.rmtree(run_dir, ignore_errors=True)  # leftovers of an interrupted attempt
+            run_dir.mkdir(parents=True)
+            body = _train(cfg, run_dir, started)
+            config = OmegaConf.to_container(cfg, resolve=True)
+            records.write_record(
+                out, records.make_record(body, run_id=rid, kind="model", config=config)
+            )
+            status, reason = body["status"], body.get("reason")
+    return Outcome(rid, cfg.model.name, cfg.task.name, int(cfg.seed), status,
+                   time.perf_counter() - tick, reason)
+
+
+def sweep_job(cfg: DictConfig) -> dict[str, Any]:
+    """Hydra task function of one sweep job; never raises, so the sweep always goes on."""
+    hydra_cfg = HydraConfig.get()
+    overrides = list(hydra_cfg.overrides.task)
+    logging.getLogger("lightning").setLevel(logging.WARNING)
+    tick = time.perf_counter()
+    try:
+        job = finish_config(cfg, overrides)
+        outcome = run_one(job, threads=threads_for_launcher(hydra_cfg.launcher), sweep=True)
+    except (ConfigError, OutDirError) as error:
+        outcome = Outcome("-", str(cfg.model.name), str(cfg.task.name), int(cfg.seed), "refused",
+                          time.perf_counter() - tick, str(error))
+    except Exception as error:  # a harness bug: shown, and the sweep goes on
+        log.exception("job %s failed outside training", " ".join(overrides))
+        outcome = Outcome("-", str(cfg.model.name), str(cfg.task.name), int(cfg.seed), "refused",
+                          time.perf_counter() - tick, f"{type(error).__name__}: {error}")
+    done = state.count_finished(cfg.out, asdict(outcome))
+    prefix = f"[{done[0]:>3}/{done[1]}] " if done else ""
+    print(prefix + outcome.line(), flush=True)
+    return asdict(outcome)
+
+
+# The launcher pickles ``sweep_job`` by reference, so the decorated entry point gets its own name.
+hydra_sweep_entry = hydra.main(
+    version_base="1.3", config_path="pkg://loopzoo.conf", config_name="config"
+)(sweep_job)

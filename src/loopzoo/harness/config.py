@@ -1,0 +1,211 @@
+"""Compose the shipped Hydra configs and turn every bad input into a ``ConfigError`` that names
+the field, the value and what is accepted."""
+
+from __future__ import annotations
+
+import difflib
+import os
+import re
+from collections.abc import Iterator
+from contextlib import contextmanager
+from importlib import resources
+from typing import Any
+
+from hydra import compose, initialize_config_module
+from hydra.core.global_hydra import GlobalHydra
+from hydra.core.override_parser.overrides_parser import OverridesParser
+from hydra.core.override_parser.types import Override
+from hydra.errors import HydraException, MissingConfigException
+from omegaconf import DictConfig, OmegaConf
+from omegaconf.errors import MissingMandatoryValue, OmegaConfBaseException
+
+import loopzoo
+from loopzoo._registry import unknown_choice
+from loopzoo.harness.errors import ConfigError
+
+__all__ = [
+    "CONFIG_MODULE",
+    "GROUPS",
+    "cores",
+    "group_options",
+    "parse_overrides",
+    "composer",
+    "compose_job",
+    "finish_config",
+]
+
+CONFIG_MODULE = "loopzoo.conf"
+GROUPS = ("model", "task", "trainer", "optim", "protocol", "suite", "hydra/launcher")
+# Launchers the installed Hydra plugins provide besides the shipped presets.
+_PLUGIN_LAUNCHERS = ("basic", "joblib", "submitit_local", "submitit_slurm")
+
+
+def cores() -> int:
+    """CPU cores this process may use."""
+    try:
+        return len(os.sched_getaffinity(0))
+    except AttributeError:  # not on Linux
+        return os.cpu_count() or 1
+
+
+if not OmegaConf.has_resolver("loopzoo.cores"):
+    OmegaConf.register_new_resolver("loopzoo.cores", cores)
+
+
+def group_options(group: str) -> list[str]:
+    """Names of the shipped options of a config group (``conf/<group>/*.yaml``), sorted."""
+    folder = resources.files(CONFIG_MODULE).joinpath(group)
+    shipped = [p.name[: -len(".yaml")] for p in folder.iterdir() if p.name.endswith(".yaml")]
+    extra = list(_PLUGIN_LAUNCHERS) if group == "hydra/launcher" else []
+    return sorted(set(shipped + extra))
+
+
+def parse_overrides(overrides: list[str]) -> list[Override]:
+    """Hydra's parse of ``key=value`` overrides; a syntax error becomes a ``ConfigError``."""
+    try:
+        return OverridesParser.create().parse_overrides(overrides)
+    except HydraException as error:
+        raise ConfigError(f"cannot read the overrides: {error}") from None
+
+
+def _flat_keys(node: Any, prefix: str = "") -> list[str]:
+    if not isinstance(node, dict):
+        return []
+    keys: list[str] = []
+    for key, value in node.items():
+        path = f"{prefix}{key}"
+        keys.append(path)
+        keys.extend(_flat_keys(value, path + "."))
+    return keys
+
+
+def _unknown_key_error(key: str, valid: list[str]) -> ConfigError:
+    parent = key.rpartition(".")[0]
+    siblings = [k for k in valid if k.rpartition(".")[0] == parent]
+    near = difflib.get_close_matches(key, valid, n=3, cutoff=0.5)
+    hint = f" Nearest valid keys: {', '.join(near)}." if near else ""
+    level = f" Keys under {parent!r}: {', '.join(siblings)}." if siblings and parent else ""
+    return ConfigError(
+        f"unknown config key {key!r}.{hint}{level} (A key the shipped configs lack can be "
+        f"added with +{key}=VALUE.)"
+    )
+
+
+@contextmanager
+def composer() -> Iterator[Any]:
+    """A context in which ``compose_job`` may be called many times with one Hydra set-up."""
+    if GlobalHydra.instance().is_initialized():
+        yield compose
+        return
+    with initialize_config_module(config_module=CONFIG_MODULE, version_base="1.3"):
+        yield compose
+
+
+def _explain(error: Exception, overrides: list[str]) -> ConfigError:
+    message = str(error)
+    missing = re.search(r"Could not find '([^']+)'", message)
+    if isinstance(error, MissingConfigException) and missing:
+        group, _, name = missing.group(1).rpartition("/")
+        if group in GROUPS:
+            return ConfigError(str(unknown_choice(group, name, group_options(group))))
+    not_struct = re.search(r"Could not (?:override|append to|delete from) '([^']+)'", message)
+    if not_struct:
+        key = not_struct.group(1)
+        groups_only = [
+            o for o in overrides if o.split("=", 1)[0].lstrip("+~") in GROUPS and "," not in o
+        ]
+        try:
+            base = compose("config", overrides=groups_only)
+        except (HydraException, OmegaConfBaseException):
+            base = compose("config")
+        valid = _flat_keys(OmegaConf.to_container(base, resolve=False))
+        return _unknown_key_error(key, valid)
+    return ConfigError(message.split("\nConfig search path")[0].strip())
+
+
+def compose_job(overrides: list[str], *, with_hydra: bool = False) -> DictConfig:
+    """The config of one run for ``overrides`` (call inside ``composer()``).
+
+    Hydra's errors (unknown group options, unknown keys, bad syntax) are rewritten as
+    ``ConfigError`` naming the value and the accepted ones. With ``with_hydra`` the ``hydra``
+    node is kept (sweep lists, launcher) and ``finish_config`` is not applied.
+    """
+    try:
+        cfg = compose("config", overrides=list(overrides), return_hydra_config=with_hydra)
+    except (HydraException, OmegaConfBaseException) as error:
+        raise _explain(error, list(overrides)) from None
+    return cfg if with_hydra else finish_config(cfg, overrides)
+
+
+def _leaves(node: Any, prefix: str = "") -> list[str]:
+    if not isinstance(node, dict) or not node:
+        return [prefix.rstrip(".")]
+    return [leaf for key, value in node.items() for leaf in _leaves(value, f"{prefix}{key}.")]
+
+
+def _apply_per_task(cfg: DictConfig, overrides: list[str]) -> DictConfig:
+    per_task = OmegaConf.to_container(cfg.per_task, resolve=False)
+    known_tasks = group_options("task")
+    for name in per_task:
+        if name not in known_tasks:
+            raise ConfigError(str(unknown_choice("task in per_task", name, known_tasks)))
+    fragment = per_task.get(cfg.task.name)
+    if not fragment:
+        return cfg
+    try:
+        merged = OmegaConf.merge(cfg, fragment)
+    except OmegaConfBaseException as error:
+        raise ConfigError(
+            f"per_task.{cfg.task.name} sets a key the config lacks: {error.full_key!r} "
+            f"({type(error).__name__})"
+        ) from None
+    # The command line wins over the suite's per-task settings: re-apply its overrides there.
+    leaves = _leaves(fragment)
+    for override in parse_overrides(list(overrides)):
+        key = override.key_or_group
+        touches = any(leaf == key or leaf.startswith(key + ".") or key.startswith(leaf + ".")
+                      for leaf in leaves)
+        if not touches or override.is_delete() or override.is_sweep_override():
+            continue
+        if isinstance(OmegaConf.select(merged, key), DictConfig) and key in GROUPS:
+            continue  # a group choice such as task=adding, already composed
+        OmegaConf.update(merged, key, override.value(), merge=False,
+                         force_add=override.is_add() or override.is_force_add())
+    return merged
+
+
+def _check_names(cfg: DictConfig) -> None:
+    topologies = loopzoo.available()
+    if cfg.model.name not in topologies:
+        raise ConfigError(str(unknown_choice("model.name", cfg.model.name, topologies)))
+    tasks = loopzoo.tasks.available()
+    if cfg.task.name not in tasks:
+        raise ConfigError(str(unknown_choice("task.name", cfg.task.name, tasks)))
+    if isinstance(cfg.seed, bool) or not isinstance(cfg.seed, int) or cfg.seed < 0:
+        raise ConfigError(f"seed must be a non-negative integer, got {cfg.seed!r}")
+    if not isinstance(cfg.out, str) or not cfg.out:
+        raise ConfigError(f"out must be a directory path, got {cfg.out!r}")
+
+
+def finish_config(cfg: DictConfig, overrides: list[str]) -> DictConfig:
+    """Apply the suite's ``per_task`` settings, resolve, check names, drop ``per_task``.
+
+    The result is a struct-mode ``DictConfig`` without the ``hydra`` node: what a run records.
+    Missing required values (``???``, e.g. the csv task's path) are refused by name.
+    """
+    cfg = _apply_per_task(cfg, overrides)
+    try:
+        data = OmegaConf.to_container(cfg, resolve=True, throw_on_missing=True)
+    except MissingMandatoryValue as error:
+        raise ConfigError(
+            f"{error.full_key} is required (model {cfg.model.name}, task {cfg.task.name}): "
+            f"give {error.full_key}=VALUE"
+        ) from None
+    except OmegaConfBaseException as error:
+        raise ConfigError(f"cannot resolve {error.full_key}: {error}") from None
+    data.pop("hydra", None)
+    data.pop("per_task", None)
+    finished = OmegaConf.create(data)
+    OmegaConf.set_struct(finished, True)
+    _check_names(finished)
+    return finished

@@ -1,0 +1,202 @@
+"""Run records: one self-describing JSON file per run, written atomically.
+
+Layout of an output directory ``DIR``::
+
+    DIR/loopzoo-out.json          manifest: record schema, config version, suite
+    DIR/records/<run_id>.json     one record per run (model runs and classical baselines)
+    DIR/runs/<run_id>/            the run's own files (Lightning logs, artifact)
+
+A record holds ``schema``, ``run_id``, ``kind`` ("model" | "baseline"), ``config`` (the resolved
+config) and the body returned by ``loopzoo.harness.training.train_and_evaluate``: ``status``
+("ok" | "diverged" | "failed"), ``reason``, ``diverged_at_step``, ``model``, ``task``, ``suite``,
+``seed``, ``params``, ``budget``, ``sizes``, ``versions``, ``primary``, ``metrics``, ``lr``,
+``curves``, ``cost``, ``gradient_reach``, ``feedback``, ``started``, ``finished``.
+"""
+
+from __future__ import annotations
+
+import json
+import platform
+from datetime import datetime, timezone
+from pathlib import Path
+from typing import Any
+
+from loopzoo._io import atomic_write_json
+from loopzoo.harness.errors import OutDirError
+
+__all__ = [
+    "SCHEMA",
+    "CONFIG_VERSION",
+    "MANIFEST",
+    "STATUSES",
+    "KEPT_ON_RERUN",
+    "BODY_FIELDS",
+    "records_dir",
+    "record_path",
+    "make_record",
+    "failed_body",
+    "write_record",
+    "read_record",
+    "load_records",
+    "is_done",
+    "claim_out_dir",
+    "versions",
+    "utc_now",
+]
+
+SCHEMA = "loopzoo.run/1"
+# Bumped whenever a config key changes meaning, so old output directories are refused.
+CONFIG_VERSION = 1
+MANIFEST = "loopzoo-out.json"
+STATUSES = ("ok", "diverged", "failed")
+# A rerun keeps ok and diverged records (divergence is a deterministic outcome of config and
+# seed, so rerunning would only repeat it) and redoes failed ones (a failure may be transient).
+KEPT_ON_RERUN = ("ok", "diverged")
+BODY_FIELDS = (
+    "status", "reason", "diverged_at_step", "model", "task", "suite", "seed", "params", "budget",
+    "sizes", "versions", "primary", "metrics", "lr", "curves", "cost", "gradient_reach",
+    "feedback", "started", "finished",
+)
+
+
+def utc_now() -> str:
+    """The current time as ``YYYY-MM-DDTHH:MM:SSZ``."""
+    return datetime.now(timezone.utc).strftime("%Y-%m-%dT%H:%M:%SZ")
+
+
+def records_dir(out: str | Path) -> Path:
+    """``out/records``."""
+    return Path(out) / "records"
+
+
+def record_path(out: str | Path, run_id: str) -> Path:
+    """``out/records/<run_id>.json``."""
+    return records_dir(out) / f"{run_id}.json"
+
+
+def versions() -> dict[str, Any]:
+    """Versions of python, torch, lightning, hydra and loopzoo, and torch's thread setting."""
+    import hydra
+    import lightning
+    import torch
+
+    import loopzoo
+
+    return {
+        "python": platform.python_version(),
+        "torch": torch.__version__,
+        "lightning": lightning.__version__,
+        "hydra": hydra.__version__,
+        "loopzoo": loopzoo.__version__,
+        "torch_threads": torch.get_num_threads(),
+        "torch_interop_threads": torch.get_num_interop_threads(),
+    }
+
+
+def make_record(
+    body: dict[str, Any], *, run_id: str, kind: str, config: dict[str, Any]
+) -> dict[str, Any]:
+    """A full record: ``schema``, ``run_id``, ``kind`` and ``config`` added to ``body``.
+
+    Every field of ``BODY_FIELDS`` is present (missing ones are null); ``status`` must be one of
+    ``STATUSES``.
+    """
+    status = body.get("status")
+    if status not in STATUSES:
+        raise ValueError(
+            f"record {run_id}: status {status!r} is not one of {', '.join(STATUSES)}"
+        )
+    if kind not in ("model", "baseline"):
+        raise ValueError(f"record {run_id}: kind {kind!r} is not 'model' or 'baseline'")
+    record = {field: body.get(field) for field in BODY_FIELDS}
+    record.update({k: v for k, v in body.items() if k not in record})
+    record.update({"schema": SCHEMA, "run_id": run_id, "kind": kind, "config": config})
+    return record
+
+
+def failed_body(cfg: dict[str, Any], reason: str, started: str) -> dict[str, Any]:
+    """The body of a run that raised before producing its own: status failed with ``reason``."""
+    return {
+        "status": "failed",
+        "reason": reason,
+        "model": cfg["model"]["name"],
+        "task": cfg["task"]["name"],
+        "suite": cfg.get("suite"),
+        "seed": cfg["seed"],
+        "budget": cfg["task"].get("budget"),
+        "versions": versions(),
+        "metrics": {},
+        "started": started,
+        "finished": utc_now(),
+    }
+
+
+def write_record(out: str | Path, record: dict[str, Any]) -> Path:
+    """Write ``record`` to ``out/records/<run_id>.json`` atomically; returns the path."""
+    path = record_path(out, record["run_id"])
+    atomic_write_json(path, record)
+    return path
+
+
+def read_record(path: str | Path) -> dict[str, Any]:
+    """Read one record, refusing files that are not records of this ``SCHEMA``."""
+    path = Path(path)
+    try:
+        record = json.loads(path.read_text(encoding="utf-8"))
+    except (OSError, UnicodeDecodeError, json.JSONDecodeError) as error:
+        raise OutDirError(f"{path}: not a readable run record ({error})") from None
+    if not isinstance(record, dict) or record.get("schema") != SCHEMA:
+        found = record.get("schema") if isinstance(record, dict) else type(record).__name__
+        raise OutDirError(f"{path}: record schema {found!r}, expected {SCHEMA!r}")
+    return record
+
+
+def load_records(out: str | Path) -> list[dict[str, Any]]:
+    """Every record under ``out/records``, sorted by run id (temporary files are ignored)."""
+    folder = records_dir(out)
+    if not folder.is_dir():
+        return []
+    return [read_record(p) for p in sorted(folder.glob("[!.]*.json"))]
+
+
+def is_done(out: str | Path, run_id: str) -> dict[str, Any] | None:
+    """The existing record of ``run_id`` if a rerun keeps it (status in ``KEPT_ON_RERUN``)."""
+    path = record_path(out, run_id)
+    if not path.exists():
+        return None
+    record = read_record(path)
+    return record if record.get("status") in KEPT_ON_RERUN else None
+
+
+def claim_out_dir(out: str | Path, suite: str | None) -> dict[str, Any]:
+    """Check ``out`` may take runs of ``suite`` under this schema; write its manifest if new.
+
+    Refuses (``OutDirError``) an output directory whose manifest names another record schema,
+    config version or suite, or that holds records but no manifest.
+    """
+    out = Path(out)
+    wanted = {"schema": SCHEMA, "config_version": CONFIG_VERSION, "suite": suite}
+    manifest_path = out / MANIFEST
+    if manifest_path.exists():
+        try:
+            manifest = json.loads(manifest_path.read_text(encoding="utf-8"))
+        except (OSError, UnicodeDecodeError, json.JSONDecodeError) as error:
+            raise OutDirError(f"{manifest_path}: unreadable manifest ({error})") from None
+        if not isinstance(manifest, dict):
+            raise OutDirError(f"{manifest_path}: unreadable manifest (not a JSON object)")
+        for key, value in wanted.items():
+            if manifest.get(key) != value:
+                raise OutDirError(
+                    f"out={out} holds runs with {key} {manifest.get(key)!r}, this run has "
+                    f"{key} {value!r}; records of different {key}s are never mixed: choose "
+                    "another out directory"
+                )
+        return manifest
+    if records_dir(out).is_dir() and any(records_dir(out).glob("[!.]*.json")):
+        raise OutDirError(
+            f"out={out} holds records but no {MANIFEST}: it was not written by this version "
+            "of loopzoo; choose another out directory"
+        )
+    manifest = {**wanted, "created": utc_now()}
+    atomic_write_json(manifest_path, manifest)
+    return manifest

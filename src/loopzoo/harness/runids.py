@@ -1,0 +1,76 @@
+"""Run ids derived from a run's content, so the same config always maps to the same record."""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import re
+from typing import Any
+
+from omegaconf import DictConfig, OmegaConf
+
+__all__ = ["IDENTITY_EXCLUDED", "identity", "run_id", "baseline_run_id", "baseline_group"]
+
+# Keys that change where or how visibly a run happens, never its result. Launcher settings live
+# under `hydra`, which a job's config does not contain.
+IDENTITY_EXCLUDED: tuple[str, ...] = (
+    "out",
+    "per_task",
+    "trainer.enable_progress_bar",
+    "trainer.enable_model_summary",
+)
+
+_UNSAFE = re.compile(r"[^A-Za-z0-9_.-]+")
+
+
+def identity(cfg: DictConfig | dict[str, Any]) -> dict[str, Any]:
+    """The resolved config minus ``IDENTITY_EXCLUDED``: what a run's result depends on."""
+    data = OmegaConf.to_container(cfg, resolve=True) if isinstance(cfg, DictConfig) else cfg
+    data = json.loads(json.dumps(data))  # a deep copy that also proves it is JSON-serialisable
+    data.pop("hydra", None)
+    for dotted in IDENTITY_EXCLUDED:
+        *parents, leaf = dotted.split(".")
+        node = data
+        for key in parents:
+            node = node.get(key) if isinstance(node, dict) else None
+        if isinstance(node, dict):
+            node.pop(leaf, None)
+    return data
+
+
+def _digest(content: Any) -> str:
+    canonical = json.dumps(content, sort_keys=True, separators=(",", ":"), allow_nan=False)
+    return hashlib.sha256(canonical.encode("utf-8")).hexdigest()[:10]
+
+
+def _slug(text: object) -> str:
+    return _UNSAFE.sub("_", str(text))
+
+
+def run_id(cfg: DictConfig | dict[str, Any]) -> str:
+    """``<task>-<model>-s<seed>-<hash>``, the hash over ``identity(cfg)``.
+
+    Example: ``run_id(cfg)`` -> ``"adding-stacked-s1-3f9a2c1b7d"``; changing ``out`` keeps it.
+    """
+    content = identity(cfg)
+    return (
+        f"{_slug(content['task']['name'])}-{_slug(content['model']['name'])}"
+        f"-s{_slug(content['seed'])}-{_digest(content)}"
+    )
+
+
+def baseline_group(cfg: DictConfig | dict[str, Any]) -> str:
+    """Hash of what a task's baselines depend on: the task config, the seed and the suite."""
+    content = identity(cfg)
+    return _digest(
+        {"task": content["task"], "seed": content["seed"], "suite": content.get("suite")}
+    )
+
+
+def baseline_run_id(cfg: DictConfig | dict[str, Any], baseline: str) -> str:
+    """``<task>-<baseline>-s<seed>-<group hash>`` for one classical baseline of the run's task."""
+    content = identity(cfg)
+    return (
+        f"{_slug(content['task']['name'])}-{_slug(baseline)}-s{_slug(content['seed'])}"
+        f"-{baseline_group(content)}"
+    )

@@ -1,0 +1,78 @@
+"""Scratch state of an output directory: locks, the sweep plan and its progress count.
+
+Everything lives under ``DIR/.state`` so it never mixes with records. Locks are ``flock``
+advisory locks: the kernel releases them when their process dies, even by SIGKILL.
+"""
+
+from __future__ import annotations
+
+import fcntl
+import json
+import os
+from collections.abc import Iterator
+from contextlib import contextmanager
+from pathlib import Path
+from typing import Any
+
+from loopzoo._io import atomic_write_json
+from loopzoo.harness.errors import OutDirError
+
+__all__ = ["state_dir", "file_lock", "sweep_lock", "write_plan", "read_plan", "count_finished"]
+
+
+def state_dir(out: str | Path) -> Path:
+    """``out/.state``, created on demand."""
+    folder = Path(out) / ".state"
+    folder.mkdir(parents=True, exist_ok=True)
+    return folder
+
+
+@contextmanager
+def file_lock(path: Path, *, wait: bool = True) -> Iterator[bool]:
+    """Hold an exclusive lock on ``path``; with ``wait=False`` yield False if it is taken."""
+    path.parent.mkdir(parents=True, exist_ok=True)
+    fd = os.open(path, os.O_RDWR | os.O_CREAT, 0o644)
+    try:
+        try:
+            fcntl.flock(fd, fcntl.LOCK_EX | (0 if wait else fcntl.LOCK_NB))
+        except BlockingIOError:
+            yield False
+            return
+        yield True
+    finally:
+        os.close(fd)  # closing releases the lock
+
+
+@contextmanager
+def sweep_lock(out: str | Path) -> Iterator[None]:
+    """One sweep at a time per output directory; a second one is refused, not interleaved."""
+    with file_lock(state_dir(out) / "sweep.lock", wait=False) as taken:
+        if not taken:
+            raise OutDirError(
+                f"out={out} is in use by another running sweep; wait for it or choose another out"
+            )
+        yield
+
+
+def write_plan(out: str | Path, total: int) -> None:
+    """Start a sweep's progress count at 0 of ``total``."""
+    atomic_write_json(state_dir(out) / "plan.json", {"total": total, "finished": []})
+
+
+def read_plan(out: str | Path) -> dict[str, Any] | None:
+    """The current sweep plan, or None outside a sweep."""
+    path = Path(out) / ".state" / "plan.json"
+    if not path.exists():
+        return None
+    return json.loads(path.read_text(encoding="utf-8"))
+
+
+def count_finished(out: str | Path, outcome: dict[str, Any]) -> tuple[int, int] | None:
+    """Add ``outcome`` to the sweep plan; return (finished so far, total), or None if no plan."""
+    with file_lock(state_dir(out) / "plan.lock"):
+        plan = read_plan(out)
+        if plan is None:
+            return None
+        plan["finished"].append(outcome)
+        atomic_write_json(state_dir(out) / "plan.json", plan)
+        return len(plan["finished"]), plan["total"]

@@ -1,0 +1,115 @@
+"""``loopzoo sweep``: expand the sweep, check every job, then hand it to Hydra's multirun.
+
+Before any training the whole sweep is composed job by job (so a bad name or key anywhere is
+refused up front), the output directory is claimed and locked, and the progress plan is
+written; the launcher (``hydra/launcher``, joblib by default) then runs ``app.sweep_job`` for
+each job. Jobs whose record is kept on rerun (``records.KEPT_ON_RERUN``) are skipped.
+"""
+
+from __future__ import annotations
+
+import sys
+from collections import Counter
+from dataclasses import dataclass
+from pathlib import Path
+
+from hydra._internal.core_plugins.basic_sweeper import BasicSweeper
+from omegaconf import DictConfig, OmegaConf
+
+from loopzoo.harness import records, runids, state
+from loopzoo.harness.config import compose_job, composer, parse_overrides
+from loopzoo.harness.errors import ConfigError
+
+__all__ = ["SweepPlan", "plan_sweep", "run_sweep"]
+
+
+@dataclass(frozen=True)
+class SweepPlan:
+    """The expanded sweep: each job's override list and finished config, and its output dir."""
+
+    overrides: list[list[str]]
+    jobs: list[DictConfig]
+    out: Path
+    suite: str | None
+
+    @property
+    def run_ids(self) -> list[str]:
+        """Run id of every job, in launch order."""
+        return [runids.run_id(job) for job in self.jobs]
+
+
+def _sweep_lists(base: DictConfig) -> list[str]:
+    params = base.hydra.sweeper.get("params") or {}
+    return [f"{key}={value}" for key, value in OmegaConf.to_container(params).items()]
+
+
+def plan_sweep(overrides: list[str]) -> SweepPlan:
+    """Expand ``overrides`` plus the suite's sweep lists exactly as Hydra's basic sweeper does
+    (the command line wins for a key in both) and compose every job; ``ConfigError`` on any
+    bad job, naming it."""
+    parsed = parse_overrides(overrides)
+    for override in parsed:
+        if override.key_or_group == "suite" and override.is_sweep_override():
+            raise ConfigError("suite takes one name per sweep; run one sweep per suite")
+    fixed = [o.input_line for o in parsed if not o.is_sweep_override()]
+    with composer():
+        base = compose_job(fixed, with_hydra=True)
+        combined = parse_overrides(_sweep_lists(base) + list(overrides))
+        batches = BasicSweeper.split_arguments(combined, None)
+        job_overrides = [list(job) for batch in batches for job in batch]
+        jobs = []
+        for job in job_overrides:
+            try:
+                jobs.append(compose_job(job))
+            except ConfigError as error:
+                raise ConfigError(f"job {' '.join(job)}: {error}") from None
+    outs = {job.out for job in jobs}
+    if len(outs) != 1:
+        raise ConfigError(f"out must be one directory per sweep, got {', '.join(sorted(outs))}")
+    return SweepPlan(job_overrides, jobs, Path(outs.pop()), jobs[0].suite)
+
+
+def _remove_stale_temp_files(out: Path) -> None:
+    # An atomic write killed before its rename leaves a hidden temporary file; no job is
+    # running while the sweep lock is held, so these are all stale.
+    for tmp in records.records_dir(out).glob(".*.tmp"):
+        tmp.unlink(missing_ok=True)
+
+
+def run_sweep(overrides: list[str]) -> int:
+    """Run the sweep; print one line per finished job and a summary. Returns the exit code:
+    0 when every job ran or was skipped (diverged and failed runs are recorded results),
+    2 when jobs were refused (their reasons are printed)."""
+    from loopzoo.harness.app import hydra_sweep_entry
+
+    plan = plan_sweep(overrides)
+    records.claim_out_dir(plan.out, plan.suite)
+    with state.sweep_lock(plan.out):
+        _remove_stale_temp_files(plan.out)
+        ids = plan.run_ids
+        already = sum(records.is_done(plan.out, rid) is not None for rid in ids)
+        print(
+            f"sweep: {len(ids)} runs ({len(set(ids))} distinct), {already} already recorded, "
+            f"out={plan.out}" + (f", suite={plan.suite}" if plan.suite else ""),
+            flush=True,
+        )
+        state.write_plan(plan.out, len(ids))
+        argv = sys.argv
+        sys.argv = ["loopzoo", "--multirun", *overrides]
+        try:
+            hydra_sweep_entry()
+        finally:
+            sys.argv = argv
+        finished = (state.read_plan(plan.out) or {}).get("finished", [])
+        (plan.out / ".state" / "plan.json").unlink(missing_ok=True)
+    counts = Counter(outcome["status"] for outcome in finished)
+    summary = ", ".join(f"{n} {status}" for status, n in sorted(counts.items()))
+    print(f"sweep done: {summary or 'nothing ran'}; records in {records.records_dir(plan.out)}")
+    refused = [o for o in finished if o["status"] == "refused"]
+    for outcome in refused:
+        print(f"refused: {outcome['model']} {outcome['task']} seed={outcome['seed']}: "
+              f"{outcome['reason']}", file=sys.stderr)
+    missing = len(ids) - len(finished)
+    if missing:
+        print(f"{missing} jobs did not report back", file=sys.stderr)
+    return 2 if refused or missing else 0
