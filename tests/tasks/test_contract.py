@@ -18,6 +18,9 @@ SMALL = {"train_size": 60, "val_size": 20, "test_size": 30}
 OPTIONS = {
     "adding": {**SMALL, "length": 20},
     "copy": {**SMALL, "length": 10},
+    "parity": {**SMALL, "length": 12},
+    "reber": SMALL,
+    "sines": {**SMALL, "length": 30},
 }
 
 

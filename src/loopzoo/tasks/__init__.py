@@ -13,7 +13,8 @@ from __future__ import annotations
 
 from typing import Any
 
-from loopzoo.tasks import long_lag  # noqa: F401  (importing a task file registers its tasks)
+# Importing a task file registers its tasks; the order here is the order of ``available()``.
+from loopzoo.tasks import long_lag, parity, reber, sines  # noqa: F401
 from loopzoo.tasks._base import SPLITS, ClassificationTask, RegressionTask, Split, Task
 from loopzoo.tasks._catalog import TASKS
 

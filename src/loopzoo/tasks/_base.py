@@ -151,7 +151,9 @@ class Task(ABC):
         prediction: (N, T, O) model output, scaled values (regression) or logits (classes).
         """
         part = self.split(split) if isinstance(split, str) else split
-        values = torch.as_tensor(prediction)
+        # np.array copies, so read-only (broadcast) arrays become ordinary tensors.
+        values = torch.as_tensor(np.array(prediction) if isinstance(prediction, np.ndarray)
+                                 else prediction)
         expected = (len(part), part.mask.shape[1], self.output_size)
         if tuple(values.shape) != expected:
             raise ValueError(f"prediction must have shape (N, T, output_size) = {expected} for "

@@ -1,0 +1,103 @@
+"""Forecasting a noisy mixture of sinusoids at several horizons, with a known optimum."""
+
+from __future__ import annotations
+
+import dataclasses
+
+import numpy as np
+
+from loopzoo.tasks._base import RegressionTask, Split, make_split, sequence_spans, split_generators
+from loopzoo.tasks._catalog import TASKS
+from loopzoo.tasks._options import (
+    SplitSizes,
+    check_int,
+    check_int_list,
+    check_positive_float,
+)
+from loopzoo.tasks._scaling import Standardizer
+
+__all__ = ["SinesTask"]
+
+
+@dataclasses.dataclass(frozen=True)
+class SinesOptions(SplitSizes):
+    length: int = 100  # T observed steps per sequence
+    horizons: tuple[int, ...] = (1, 5, 10)  # steps ahead, one output channel each
+    periods: tuple[int, ...] = (16, 40)  # component periods in steps
+    amplitudes: tuple[float, ...] = (1.0, 0.5)  # one per period
+    noise: float = 0.1  # standard deviation of the Gaussian observation noise
+
+    def __post_init__(self) -> None:
+        super().__post_init__()
+        check_int("length", self.length, minimum=1, maximum=100_000)
+        object.__setattr__(self, "horizons", check_int_list("horizons", self.horizons))
+        periods = self.periods
+        if isinstance(periods, int | float):
+            periods = [periods]
+        object.__setattr__(self, "periods", tuple(
+            check_positive_float(f"periods[{i}]", p) for i, p in enumerate(periods)))
+        amplitudes = self.amplitudes
+        if isinstance(amplitudes, int | float):
+            amplitudes = [amplitudes]
+        object.__setattr__(self, "amplitudes", tuple(
+            check_positive_float(f"amplitudes[{i}]", a) for i, a in enumerate(amplitudes)))
+        if len(self.amplitudes) != len(self.periods):
+            raise ValueError(f"amplitudes needs one value per period ({len(self.periods)}), "
+                             f"got {len(self.amplitudes)}")
+        check_positive_float("noise", self.noise, allow_zero=True)
+
+
+@TASKS.register("sines")
+class SinesTask(RegressionTask):
+    """Forecast v_{t+h} for each horizon h from v_0..v_t, where
+
+    v_t = sum_k a_k sin(2 pi t / P_k + phi_k) + eps_t,  phi_k ~ U[0, 2 pi) per sequence,
+    eps_t ~ N(0, noise^2). Every step is scored. Shapes: x (N, T, 1), y (N, T, len(horizons)).
+    Baselines "persistence" (v_t for every horizon) and "optimal": the noise-free signal, whose
+    expected MSE is the noise variance at every horizon (no predictor can know eps_{t+h}).
+    """
+
+    name = "sines"
+    Options = SinesOptions
+    input_size = 1
+
+    def __init__(self, seed: int = 0, **options: object) -> None:
+        super().__init__(seed, **options)
+        self.horizons = self.options.horizons
+        self.output_size = len(self.horizons)
+        self.scaler = Standardizer.identity(self.output_size)
+        self._clean: dict[str, np.ndarray] = {}
+
+    def _make_splits(self) -> dict[str, Split]:
+        sizes = self.options.sizes()
+        spans = sequence_spans(sizes)
+        steps, reach = self.options.length, max(self.horizons)
+        time = np.arange(steps + reach)
+        splits = {}
+        for name, rng in split_generators(self.name, self.seed).items():
+            count = sizes[name]
+            phases = rng.uniform(0.0, 2 * np.pi, size=(count, len(self.options.periods), 1))
+            periods = np.array(self.options.periods)[None, :, None]
+            amplitudes = np.array(self.options.amplitudes)[None, :, None]
+            clean = (amplitudes * np.sin(2 * np.pi * time / periods + phases)).sum(axis=1)
+            observed = clean + rng.normal(0.0, self.options.noise, size=clean.shape)
+            self._clean[name] = clean
+            splits[name] = make_split(observed[:, :steps, None], self._ahead(observed),
+                                      np.ones((count, steps), dtype=bool), np.full(count, steps),
+                                      spans[name], classes=False)
+        return splits
+
+    def _ahead(self, series: np.ndarray) -> np.ndarray:
+        """(N, T + max h) -> (N, T, len(horizons)): the value h steps after each of the T steps."""
+        steps = self.options.length
+        return np.stack([series[:, h : h + steps] for h in self.horizons], axis=-1)
+
+    def baselines(self) -> dict[str, dict[str, float]]:
+        test = self.split("test")
+        last = test.x[..., 0].numpy().astype(np.float64)
+        persistence = np.repeat(last[..., None], len(self.horizons), axis=-1)
+        return {"persistence": self.score_in_data_units(persistence, test),
+                "optimal": self.score_in_data_units(self._ahead(self._clean["test"]), test)}
+
+    def _facts(self) -> dict[str, object]:
+        return {"noise_variance": self.options.noise**2}
