@@ -8,7 +8,18 @@ from __future__ import annotations
 
 from typing import Any
 
-from loopzoo.topologies import hidden_feedback, stacked, torch_gated  # noqa: F401  (registers)
+# Registration order is the order `available()` lists: the design's order, not alphabetical.
+# isort: off
+from loopzoo.topologies import (  # noqa: F401  (importing a module registers it)
+    hidden_feedback,
+    output_feedback,
+    stacked,
+    deep_transition,
+    residual_skip,
+    torch_gated,
+)
+
+# isort: on
 from loopzoo.topologies._base import TOPOLOGIES, RecurrentTopology
 from loopzoo.topologies._budget import parameter_count, width_for_budget
 

@@ -138,13 +138,19 @@ class AdditiveRecurrence(nn.Module):
         self.bias = nn.Parameter(torch.empty(hidden_size))
         self.nonlinearity, self.carry, self.scale = nonlinearity, carry, scale
 
-    def sequence(self, x_tm: Tensor, h0: Tensor, valid_tm: Tensor | None) -> Tensor:
-        """Time-major x (T, B, I), h0 (B, H), valid (T, B, 1) or None -> h (T, B, H)."""
+    def sequence(
+        self, x_tm: Tensor, h0: Tensor, valid_tm: Tensor | None
+    ) -> tuple[Tensor, Tensor]:
+        """Time-major x (T, B, I), h0 (B, H), valid (T, B, 1) or None -> (h (T, B, H), final h).
+
+        h is held past each sequence's length, so the final h is its last row.
+        """
         u = project_time_major(x_tm, self.weight_ih, self.bias, time_major=True)
-        return additive_scan(
+        hs = additive_scan(
             u, h0, self.weight_hh, valid_tm,
             nonlinearity=self.nonlinearity, carry=self.carry, scale=self.scale,
         )
+        return hs, hs[-1]
 
     def step(self, x_t: Tensor, h: Tensor) -> Tensor:
         """One step: x_t (B, I), h (B, H) -> h (B, H)."""

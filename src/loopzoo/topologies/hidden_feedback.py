@@ -53,8 +53,8 @@ class HiddenFeedback(RecurrentTopology):
         return (self.hidden_size,)
 
     def _sequence(self, x, state, valid, targets, teacher_forcing) -> tuple[Tensor, State]:
-        hs = self.cell.sequence(x.transpose(0, 1), state[0], time_major_mask(valid))  # (T, B, H)
-        return batch_first(self.readout(hs)), (hs[-1],)
+        hs, final = self.cell.sequence(x.transpose(0, 1), state[0], time_major_mask(valid))
+        return batch_first(self.readout(hs)), (final,)  # hs: (T, B, H)
 
     def _step(self, x_t: Tensor, state: State) -> tuple[Tensor, State]:
         h = self.cell.step(x_t, state[0])

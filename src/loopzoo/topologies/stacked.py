@@ -71,8 +71,8 @@ class Stacked(RecurrentTopology):
     def _sequence(self, x, state, valid, targets, teacher_forcing) -> tuple[Tensor, State]:
         signal, valid_tm, finals = x.transpose(0, 1), time_major_mask(valid), []
         for k, layer in enumerate(self.layers):
-            signal = layer.sequence(self._between_layers(signal, k), state[k], valid_tm)
-            finals.append(signal[-1])  # (T, B, H) -> this layer's final state
+            signal, final = layer.sequence(self._between_layers(signal, k), state[k], valid_tm)
+            finals.append(final)
         return batch_first(self.readout(signal)), tuple(finals)
 
     def _step(self, x_t: Tensor, state: State) -> tuple[Tensor, State]:

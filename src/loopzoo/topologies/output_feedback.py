@@ -1,0 +1,161 @@
+"""output-feedback: the Jordan network (Jordan 1986): the previous output drives the state.
+
+    h_t = f(U x_t + W o_{t-1} + b)
+    y_t = V h_t + c
+    o_t = the fed-back value: the target y*_t (teacher forcing, Williams & Zipser 1989), or the
+          model's own output: y_t for real outputs, softmax(y_t) or onehot(argmax y_t) for classes
+
+Teacher forcing (teacher_forcing=1.0) makes every step independent, so the whole sequence runs as
+one batched pass: o_{t-1} is the target shifted one step, with the carried state at t = 0.
+Free running (0.0) and scheduled sampling (Bengio et al. 2015; strictly between: one coin per
+time step and sequence picks target or own output) run the time loop.
+
+Shapes: x (B, T, I), h_t (B, H), y (B, T, O); targets (B, T, O) real, or for classes (B, T)
+class ids / (B, T, O) probabilities. State: (o,) of shape (B, O), the value fed into the next step.
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+import torch
+from torch import Tensor, nn
+
+from loopzoo.topologies._base import (
+    RecurrentTopology,
+    State,
+    batch_first,
+    hold,
+    project_time_major,
+    register,
+    uniform_init,
+)
+from loopzoo.topologies._options import NONLINEARITY, Option, choice
+
+__all__ = ["OutputFeedback"]
+
+_FED_BACK = {"real": ("value", "detached"), "classes": ("distribution", "onehot")}
+
+
+@register("output-feedback")
+class OutputFeedback(RecurrentTopology):
+    """Jordan network with teacher forcing, free running and scheduled sampling.
+
+    Options: nonlinearity ('tanh' | 'relu'); output_kind ('real' | 'classes': y are logits);
+    fed_back, what the model feeds back of its own output: for real 'value' (default) or
+    'detached' (the value without a gradient path); for classes 'distribution' (softmax, default)
+    or 'onehot' (of the argmax). Teacher forcing always feeds the (one-hot) target.
+
+    >>> import loopzoo, torch
+    >>> model = loopzoo.create("output-feedback", input_size=3, output_size=2, hidden_size=8)
+    >>> x, t = torch.randn(4, 10, 3), torch.randn(4, 10, 2)
+    >>> y, (o,) = model(x, targets=t)               # teacher forcing: one batched pass
+    >>> y_free, _ = model(x, teacher_forcing=0.0)   # free running
+    >>> y.shape, o.shape
+    (torch.Size([4, 10, 2]), torch.Size([4, 2]))
+    """
+
+    feeds_back_output = True
+    option_specs = {
+        "nonlinearity": NONLINEARITY,
+        "output_kind": Option("real", choice("real", "classes"), "real values or class logits"),
+        "fed_back": Option(
+            "auto", choice("auto", *_FED_BACK["real"], *_FED_BACK["classes"]),
+            "own output fed back when free running ('auto': value / distribution)",
+        ),
+    }
+
+    def __init__(self, **sizes_and_options: Any) -> None:
+        super().__init__(**sizes_and_options)
+        kind, fed_back = self.options["output_kind"], self.options["fed_back"]
+        if fed_back == "auto":
+            fed_back = self.options["fed_back"] = _FED_BACK[kind][0]
+        if fed_back not in _FED_BACK[kind]:
+            raise ValueError(
+                f"'output-feedback' option fed_back={fed_back!r} does not fit "
+                f"output_kind={kind!r}; accepted: {', '.join(map(repr, _FED_BACK[kind]))}"
+            )
+        self.activation = torch.relu if self.options["nonlinearity"] == "relu" else torch.tanh
+        self.weight_ih = nn.Parameter(torch.empty(self.hidden_size, self.input_size))
+        self.weight_oh = nn.Parameter(torch.empty(self.hidden_size, self.output_size))
+        self.bias = nn.Parameter(torch.empty(self.hidden_size))
+        self.readout = nn.Linear(self.hidden_size, self.output_size)
+        uniform_init(self, self.hidden_size)
+
+    def state_sizes(self) -> tuple[int, ...]:
+        return (self.output_size,)
+
+    def _feed(self, y: Tensor) -> Tensor:
+        """The model's own output as it is fed back."""
+        fed_back = self.options["fed_back"]
+        if fed_back == "value":
+            return y
+        if fed_back == "detached":
+            return y.detach()
+        if fed_back == "distribution":
+            return torch.softmax(y, dim=-1)
+        return torch.zeros_like(y).scatter(-1, y.argmax(dim=-1, keepdim=True), 1.0)
+
+    def _check_targets(self, targets: Any, batch: int, steps: int) -> Tensor:
+        out = self.output_size
+        classes = self.options["output_kind"] == "classes"
+        accepted = f"({batch}, {steps}, {out}) float" + (
+            f" or ({batch}, {steps}) class ids in [0, {out})" if classes else ""
+        )
+        if not isinstance(targets, Tensor):
+            raise TypeError(f"targets must be a torch.Tensor of shape {accepted}, got "
+                            f"{type(targets).__name__}")
+        shape = tuple(targets.shape)
+        if classes and shape == (batch, steps) and not targets.is_floating_point():
+            low, high = int(targets.min()), int(targets.max())
+            if targets.dtype == torch.bool or low < 0 or high >= out:
+                raise ValueError(
+                    f"class targets must be integer ids in [0, {out}), got values from {low} "
+                    f"to {high} (dtype {targets.dtype})"
+                )
+            dtype = self._reference_parameter().dtype
+            return torch.nn.functional.one_hot(targets.long(), out).to(dtype)
+        if shape != (batch, steps, out):
+            raise ValueError(f"targets must have shape {accepted}, got shape {shape}")
+        self._check_dtype("targets", targets)
+        if not bool(torch.isfinite(targets).all()):
+            raise ValueError("targets contain non-finite values (NaN or inf)")
+        return targets
+
+    def _readout_step(self, u_t: Tensor, fed: Tensor) -> Tensor:
+        return self.readout(self.activation(u_t + fed @ self.weight_oh.t()))
+
+    def _sequence(self, x, state, valid, targets, teacher_forcing) -> tuple[Tensor, State]:
+        if teacher_forcing == 1.0:
+            return self._teacher_forced(x, state, valid, targets)
+        u = project_time_major(x, self.weight_ih, self.bias)  # (T, B, H)
+        steps, batch = u.shape[0], u.shape[1]
+        if teacher_forcing > 0.0:
+            # One coin per time step and sequence: True feeds the target.
+            coins = torch.rand(steps, batch, 1, device=x.device) < teacher_forcing
+            targets_tm = targets.transpose(0, 1)
+        outputs = []
+        for t in range(steps):
+            y_t = self._readout_step(u[t], state[0])
+            fed = self._feed(y_t)
+            if teacher_forcing > 0.0:
+                fed = torch.where(coins[t], targets_tm[t], fed)
+            state = hold(None if valid is None else valid[:, t:t + 1], (fed,), state)
+            outputs.append(y_t)
+        return torch.stack(outputs, dim=1), state
+
+    def _teacher_forced(self, x, state, valid, targets) -> tuple[Tensor, State]:
+        """All steps at once: o_{t-1} = targets[:, t-1], and the carried state at t = 0."""
+        previous = torch.cat([state[0].unsqueeze(1), targets[:, :-1]], dim=1)  # (B, T, O)
+        u = project_time_major(x, self.weight_ih, self.bias)  # (T, B, H)
+        pre = u + project_time_major(previous, self.weight_oh, None)
+        y = batch_first(self.readout(self.activation(pre)))
+        if valid is None:
+            return y, (targets[:, -1],)
+        lengths = valid.sum(dim=1)
+        last = targets[torch.arange(x.shape[0], device=x.device), (lengths - 1).clamp(min=0)]
+        return y, (torch.where((lengths > 0).unsqueeze(1), last, state[0]),)
+
+    def _step(self, x_t: Tensor, state: State) -> tuple[Tensor, State]:
+        y_t = self._readout_step(torch.addmm(self.bias, x_t, self.weight_ih.t()), state[0])
+        return y_t, (self._feed(y_t),)
