@@ -21,6 +21,8 @@ OPTIONS = {
     "parity": {**SMALL, "length": 12},
     "reber": SMALL,
     "sines": {**SMALL, "length": 30},
+    "fleet-log": {"lines": 200, "length": 40},
+    "text": {"length": 30},
 }
 
 
@@ -36,7 +38,11 @@ def files(tmp_path_factory):
 
 
 def user_files(folder):
-    return {}
+    # Demo data of an invented scenario (a night-shift bakery's oven notes), not a reference set.
+    notes = folder / "oven-notes.txt"
+    notes.write_text("".join(f"oven {n % 4} at {180 + n % 40} C, tray {n % 9} out at {n % 60:02d}\n"
+                             for n in range(80)), encoding="utf-8")
+    return {"text": {"path": str(notes)}}
 
 
 @pytest.fixture(scope="module", params=loopzoo.tasks.available())

@@ -1,0 +1,64 @@
+"""The user's own UTF-8 text file as a next-character task."""
+
+from __future__ import annotations
+
+import dataclasses
+import os
+from pathlib import Path
+
+from loopzoo.tasks._catalog import TASKS
+from loopzoo.tasks._text import CharacterTask, TextOptions
+
+__all__ = ["TextFileTask"]
+
+
+@dataclasses.dataclass(frozen=True)
+class TextFileOptions(TextOptions):
+    path: str | os.PathLike[str] | None = None  # the UTF-8 text file (required)
+
+    def __post_init__(self) -> None:
+        super().__post_init__()
+        if self.path is None:
+            raise ValueError("text needs path=<a UTF-8 text file>")
+        if not isinstance(self.path, str | os.PathLike):
+            raise ValueError(f"path must be a file path, got {self.path!r}")
+
+
+def read_text(path: Path) -> str:
+    """The file's text; clear errors for a missing, unreadable, non-UTF-8 or empty file."""
+    if not path.exists():
+        raise FileNotFoundError(f"text file {str(path)!r} does not exist")
+    if not path.is_file():
+        raise ValueError(f"text path {str(path)!r} is not a file")
+    data = path.read_bytes()
+    try:
+        text = data.decode("utf-8")
+    except UnicodeDecodeError as error:
+        raise ValueError(f"text file {str(path)!r} is not UTF-8: byte {error.start} "
+                         f"({data[error.start:error.start + 1]!r}) cannot be decoded; "
+                         "save the file as UTF-8") from None
+    if not text.strip():
+        raise ValueError(f"text file {str(path)!r} is empty (no characters besides whitespace)")
+    return text
+
+
+@TASKS.register("text")
+class TextFileTask(CharacterTask):
+    """Next-character prediction on a UTF-8 text file, split in time (train, val, test).
+
+    x[:, t] = one_hot(c_t), y[:, t] = c_{t+1}; chunks of ``length``; metric bits per character;
+    baselines "unigram" and "bigram".
+
+    Example:
+        >>> task = loopzoo.tasks.create("text", path="notes.txt", length=128)
+    """
+
+    name = "text"
+    Options = TextFileOptions
+
+    def __init__(self, seed: int = 0, **options: object) -> None:
+        super().__init__(seed, **options)
+        path = Path(self.options.path)
+        self.source = str(path)
+        self.text = read_text(path)
+        self._prepare_text()
