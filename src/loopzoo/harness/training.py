@@ -140,6 +140,11 @@ class _Run:
         self.train, self.val, self.test = (task.split(s) for s in ("train", "val", "test"))
         _check_protocol(settings, len(self.train.x))
         self.select_group = settings.feedback_select if self.feeds_back else "plain"
+        try:
+            optimizer_factory(settings.optimizer, lr=settings.lr,
+                              weight_decay=settings.weight_decay, extra=settings.optimizer_extra)
+        except ValueError as error:
+            raise ConfigError(str(error)) from error
         self.fit_seconds = 0.0
         self.total_steps = 0
         self.val_seconds = 0.0

@@ -1,0 +1,101 @@
+"""Bad configs are refused before training with the field, the value and what is accepted;
+diverging and failing runs are recorded, never raised."""
+
+from pathlib import Path
+
+import pytest
+from hydra import compose, initialize_config_module
+
+from loopzoo.harness import module
+from loopzoo.harness.errors import ConfigError
+from loopzoo.harness.training import train_and_evaluate
+
+TINY = [
+    "task.options.length=12", "+task.options.train_size=128", "+task.options.val_size=32",
+    "+task.options.test_size=32", "task.batch_size=32", "task.budget=400",
+    "trainer.max_steps=20", "protocol.val_every=10", "protocol.lr_grid=null",
+    "trainer.enable_progress_bar=false",
+]
+
+
+def tiny_config(*overrides: str):
+    """The shipped config composed with Hydra and shrunk to a run of well under a second."""
+    with initialize_config_module(config_module="loopzoo.conf", version_base="1.3"):
+        return compose(config_name="config", overrides=[*TINY, *overrides])
+
+
+@pytest.mark.parametrize(
+    ("overrides", "message"),
+    [
+        (["task.budget=5"], r"task.budget = 5 cannot be met .*smallest"),
+        (["model.name=elmann"], r"unknown topology 'elmann'.*hidden-feedback"),
+        (["task.name=adder"], r"unknown task 'adder'.*adding"),
+        (["optim.lr=-1"], r"optim.lr = -1 is invalid; accepted: a finite number > 0"),
+        (["optim.name=adagrad"], r"unknown optimizer 'adagrad'; available: adam"),
+        (["+optim.momentum=0.9"], r"optim keys \['momentum'\].*optimizer 'adam'"),
+        (["protocol.lr_grid=[0.1,0.1]"], r"protocol.lr_grid .* repeats"),
+        (["protocol.val_every=0"], r"protocol.val_every = 0 is invalid"),
+        (["protocol.tbptt_chunk=-3"], r"protocol.tbptt_chunk = -3"),
+        (["protocol.feedback_select=both"], r"protocol.feedback_select = 'both'"),
+        (["+protocol.warmup=3"], r"protocol keys \['warmup'\] are unknown"),
+        (["trainer.max_steps=0"], r"trainer.max_steps = 0"),
+        (["+trainer.gradient_clip_val=1.0"], r"trainer.gradient_clip_val .*optim.grad_clip_norm"),
+        (["task.batch_size=1000"], r"task.batch_size = 1000 exceeds the 128 training sequences"),
+        (["+model.feedback.mode=scheduled"], r"does not feed back its output"),
+        (["task.options.length=0"], r"task 'adding'"),
+    ],
+)
+def test_bad_configs_are_refused_before_training(tmp_path: Path, monkeypatch, overrides, message):
+    trained = []
+    monkeypatch.setattr(module.SequenceModule, "training_step", lambda *a: trained.append(1))
+    with pytest.raises(ConfigError, match=message):
+        train_and_evaluate(tiny_config(*overrides), tmp_path)
+    assert not trained
+
+
+def test_a_non_finite_step_is_recorded_as_diverged_at_that_step(tmp_path: Path, monkeypatch):
+    calls = []
+    original = module.masked_loss
+
+    def poisoned(*args):
+        calls.append(1)
+        loss = original(*args)
+        return loss * float("nan") if len(calls) == 7 else loss
+
+    monkeypatch.setattr(module, "masked_loss", poisoned)
+    body = train_and_evaluate(tiny_config(), tmp_path)
+    assert body["status"] == "diverged"
+    assert body["diverged_at_step"] == 7
+    assert "step 7" in body["reason"]
+    assert body["metrics"] is None
+    assert body["cost"]["steps"] == 6
+
+
+def test_a_diverged_probe_is_left_out_of_the_lr_choice(tmp_path: Path, monkeypatch):
+    # The third probe (lr 0.01) sees a NaN loss on its first step.
+    calls = []
+    original = module.masked_loss
+
+    def poisoned(*args):
+        calls.append(1)
+        loss = original(*args)
+        return loss * float("nan") if len(calls) == 21 else loss
+
+    monkeypatch.setattr(module, "masked_loss", poisoned)
+    body = train_and_evaluate(
+        tiny_config("protocol.lr_grid=[0.001,0.003,0.01]", "protocol.lr_probe_fraction=0.5"),
+        tmp_path,
+    )
+    assert body["status"] == "ok"
+    assert body["lr"]["val_by_lr"]["0.01"] is None
+    assert body["lr"]["chosen"] in (0.001, 0.003)
+
+
+def test_an_error_inside_training_is_recorded_as_failed(tmp_path: Path, monkeypatch):
+    def broken(*args, **kwargs):
+        raise RuntimeError("simulated out-of-memory")
+
+    monkeypatch.setattr(module.SequenceModule, "training_step", broken)
+    body = train_and_evaluate(tiny_config(), tmp_path)
+    assert body["status"] == "failed"
+    assert body["reason"] == "RuntimeError: simulated out-of-memory"

@@ -1,0 +1,156 @@
+"""The fair protocol end to end on tiny shipped configs: lr probes, early stopping, test once."""
+
+from pathlib import Path
+
+import pytest
+from hydra import compose, initialize_config_module
+
+import loopzoo
+from loopzoo.harness import evaluation, module
+from loopzoo.harness.training import baseline_records, train_and_evaluate
+
+TINY = [
+    "task.options.length=12", "+task.options.train_size=256", "+task.options.val_size=64",
+    "+task.options.test_size=64", "task.batch_size=32", "task.budget=400",
+    "trainer.max_steps=40", "protocol.val_every=10", "trainer.enable_progress_bar=false",
+]
+
+
+def tiny_config(*overrides: str):
+    """The shipped config composed with Hydra and shrunk to a run of well under a second."""
+    with initialize_config_module(config_module="loopzoo.conf", version_base="1.3"):
+        return compose(config_name="config", overrides=[*TINY, *overrides])
+
+
+def test_a_run_returns_every_body_field(tmp_path: Path):
+    body = train_and_evaluate(tiny_config("model=gru", "task=adding", "seed=3"), tmp_path)
+    assert body["status"] == "ok", body["reason"]
+    assert (body["model"], body["task"], body["seed"]) == ("gru", "adding", 3)
+    # The width is solved from the budget by the zoo's own solver.
+    width = loopzoo.width_for_budget("gru", params=400, input_size=2, output_size=1, num_layers=1)
+    assert body["sizes"] == {"input_size": 2, "output_size": 1, "hidden_size": width}
+    def count(hidden: int) -> int:
+        model = loopzoo.create("gru", input_size=2, output_size=1, hidden_size=hidden)
+        return sum(p.numel() for p in model.parameters())
+
+    assert body["params"] == count(width)
+    assert abs(count(width) - 400) <= min(abs(count(width - 1) - 400), abs(count(width + 1) - 400))
+    assert body["primary"] == {"name": "mse", "goal": "min"}
+    assert set(body["metrics"]) == {"val", "test"}
+    assert body["metrics"]["test"]["mse"] > 0.0
+    cost = body["cost"]
+    for key in ("wall_seconds", "train_seconds", "train_ms_per_step", "step_latency_ms",
+                "batched_step_latency_ms", "peak_memory_mb"):
+        assert cost[key] > 0.0, key
+    assert cost["batched_batch_size"] == 32
+    assert 0.0 <= cost["clip_rate"] <= 1.0
+    assert body["curves"]["step"] == [10, 20, 30, 40][: len(body["curves"]["step"])]
+    assert len(body["curves"]["val"]) == len(body["curves"]["train_loss"])
+    assert body["started"] <= body["finished"]
+
+
+def test_the_lr_grid_is_probed_and_the_best_probe_continued(tmp_path: Path):
+    body = train_and_evaluate(
+        tiny_config("model=hidden-feedback", "protocol.lr_grid=[0.001,0.01,0.03]",
+                    "protocol.lr_probe_fraction=0.25", "protocol.patience=null"),
+        tmp_path,
+    )
+    lr = body["lr"]
+    assert lr["grid"] == [0.001, 0.01, 0.03]
+    assert lr["probe_steps"] == 10
+    assert set(lr["val_by_lr"]) == {"0.001", "0.01", "0.03"}
+    assert lr["chosen"] == min(lr["grid"], key=lambda v: lr["val_by_lr"][str(v)])
+    # Three probes of 10 steps, then the chosen one goes on from 10 to 40.
+    assert body["cost"]["steps"] == 40
+    assert body["cost"]["steps_with_probes"] == 3 * 10 + 30
+    # The chosen probe's best validation is where its curve starts.
+    assert body["curves"]["val"][0] == lr["val_by_lr"][str(lr["chosen"])]
+
+
+def test_a_single_rate_trains_once(tmp_path: Path):
+    body = train_and_evaluate(tiny_config("protocol.lr_grid=null", "optim.lr=0.005"), tmp_path)
+    assert body["lr"]["chosen"] == 0.005 and body["lr"]["grid"] is None
+    assert body["cost"]["steps_with_probes"] == body["cost"]["steps"] == 40
+
+
+def test_early_stopping_after_patience_stale_validations(tmp_path: Path, monkeypatch):
+    # A scorer that never improves after its first call: the run must stop after `patience`
+    # further validations, whatever the data.
+    monkeypatch.setattr(
+        evaluation.SplitScorer, "score", lambda self, model: {"plain": {"mse": 1.0, "mae": 1.0}}
+    )
+    body = train_and_evaluate(
+        tiny_config("protocol.lr_grid=null", "protocol.patience=2", "trainer.max_steps=200"),
+        tmp_path,
+    )
+    assert body["lr"]["early_stopped"] is True
+    assert body["curves"]["step"] == [10, 20, 30]
+    assert body["cost"]["steps"] == 30
+    assert body["lr"]["best_step"] == 10
+
+
+def test_the_test_split_is_scored_once_for_the_chosen_setting(tmp_path: Path, monkeypatch):
+    scored = []
+    original = evaluation.SplitScorer.score
+
+    def counting(self, model):
+        scored.append(self.split)
+        return original(self, model)
+
+    monkeypatch.setattr(evaluation.SplitScorer, "score", counting)
+    cfg = tiny_config()
+    train_and_evaluate(cfg, tmp_path)
+    test = loopzoo.tasks.create("adding", seed=0, length=12, train_size=256, val_size=64,
+                                test_size=64).split("test")
+    test_scorings = [s for s in scored if s.x.shape == test.x.shape and bool((s.x == test.x).all())]
+    assert len(test_scorings) == 1
+
+
+def test_best_validation_weights_are_kept(tmp_path: Path, monkeypatch):
+    # Scores 3, 1, 2, 4: the weights at the second validation (step 20) are the best.
+    values = iter([3.0, 1.0, 2.0, 4.0])
+    snapshots = {}
+    original = evaluation.SplitScorer.score
+
+    def scripted(self, model):
+        if len(snapshots) >= 4:  # the four validations during training, then val and test
+            return original(self, model)
+        value = next(values)
+        snapshots[value] = {k: v.clone() for k, v in model.state_dict().items()}
+        return {"plain": {"mse": value, "mae": value}}
+
+    monkeypatch.setattr(evaluation.SplitScorer, "score", scripted)
+    kept = {}
+    original_load = module.torch.nn.Module.load_state_dict
+
+    def spy(self, state_dict, *args, **kwargs):
+        kept.update({k: v.clone() for k, v in state_dict.items()})
+        return original_load(self, state_dict, *args, **kwargs)
+
+    monkeypatch.setattr(module.torch.nn.Module, "load_state_dict", spy)
+    body = train_and_evaluate(tiny_config("protocol.lr_grid=null", "protocol.patience=null"),
+                              tmp_path)
+    assert body["lr"]["best_step"] == 20
+    assert all((kept[k] == snapshots[1.0][k]).all() for k in snapshots[1.0])
+    assert any((kept[k] != snapshots[4.0][k]).any() for k in snapshots[4.0])
+
+
+def test_classification_tasks_train_on_cross_entropy(tmp_path: Path):
+    body = train_and_evaluate(
+        tiny_config("task=copy", "task.options.length=5", "model=lstm"), tmp_path
+    )
+    assert body["status"] == "ok", body["reason"]
+    assert body["primary"] == {"name": "cross_entropy", "goal": "min"}
+    assert body["metrics"]["test"]["cross_entropy"] > 0.0
+
+
+def test_baseline_records_follow_the_tasks_baselines():
+    cfg = tiny_config("seed=2")
+    task = loopzoo.tasks.create("adding", seed=2, length=12, train_size=256, val_size=64,
+                                test_size=64)
+    records = baseline_records(cfg)
+    assert [r["model"] for r in records] == list(task.baselines())
+    for record in records:
+        assert record["kind"] == "baseline" and record["status"] == "ok"
+        assert record["metrics"]["test"] == pytest.approx(task.baselines()[record["model"]])
+        assert record["cost"] is None and record["curves"] is None and record["seed"] == 2
