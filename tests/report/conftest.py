@@ -11,6 +11,7 @@ from __future__ import annotations
 import json
 import math
 from pathlib import Path
+from types import SimpleNamespace
 from typing import Any
 
 import pytest
@@ -146,6 +147,12 @@ def write_records(directory: Path, records: list[dict[str, Any]]) -> Path:
     for rec in records:
         (folder / f"{rec['run_id']}.json").write_text(json.dumps(rec, indent=2), encoding="utf-8")
     return directory
+
+
+@pytest.fixture
+def demo() -> SimpleNamespace:
+    """The demo helpers for tests (pytest's importlib mode cannot import conftest directly)."""
+    return SimpleNamespace(record=record, demo_records=demo_records, write_records=write_records)
 
 
 @pytest.fixture

@@ -37,8 +37,13 @@ class WelchResult:
     p_value: float
 
 
-def _sample_variance(values: Sequence[float], mean: float) -> float:
-    return sum((v - mean) ** 2 for v in values) / (len(values) - 1)
+def _mean_and_variance(values: Sequence[float]) -> tuple[float, float]:
+    """Mean and sample variance (ddof 1); a constant sample gets exactly its value and 0, which
+    rounding in the mean would otherwise turn into a tiny spurious variance."""
+    if min(values) == max(values):
+        return float(values[0]), 0.0
+    mean = math.fsum(values) / len(values)
+    return mean, math.fsum((v - mean) ** 2 for v in values) / (len(values) - 1)
 
 
 def mean_interval(values: Sequence[float], confidence: float = 0.95) -> Interval:
@@ -53,10 +58,10 @@ def mean_interval(values: Sequence[float], confidence: float = 0.95) -> Interval
     if not all(math.isfinite(v) for v in values):
         raise ValueError(f"mean_interval needs finite values, got {list(values)!r}")
     n = len(values)
-    mean = math.fsum(values) / n
     if n < 2:
-        return Interval(mean, n, None, None, None, confidence)
-    std = math.sqrt(_sample_variance(values, mean))
+        return Interval(float(values[0]), n, None, None, None, confidence)
+    mean, variance = _mean_and_variance(values)
+    std = math.sqrt(variance)
     quantile = float(_scipy_stats.t.ppf((1.0 + confidence) / 2.0, n - 1))
     half = quantile * std / math.sqrt(n)
     return Interval(mean, n, std, mean - half, mean + half, confidence)
@@ -71,9 +76,8 @@ def welch_test(a: Sequence[float], b: Sequence[float]) -> WelchResult | None:
     """
     if len(a) < 2 or len(b) < 2:
         return None
-    mean_a, mean_b = math.fsum(a) / len(a), math.fsum(b) / len(b)
-    term_a = _sample_variance(a, mean_a) / len(a)
-    term_b = _sample_variance(b, mean_b) / len(b)
+    (mean_a, var_a), (mean_b, var_b) = _mean_and_variance(a), _mean_and_variance(b)
+    term_a, term_b = var_a / len(a), var_b / len(b)
     pooled = term_a + term_b
     if pooled == 0.0:
         # Both samples constant: the difference is exact, not noise.

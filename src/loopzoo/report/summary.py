@@ -104,7 +104,7 @@ class TaskSummary:
 
     @property
     def best(self) -> Row | None:
-        """The rank-1 row, None when no row has a usable value."""
+        """The first rank-1 row (ties: more seeds first), None when no row has a usable value."""
         return next((row for row in self.rows if row.rank == 1), None)
 
 
@@ -317,7 +317,10 @@ def _build_row(
 
 
 def _competition_ranks(rows: Sequence[Row], goal: str) -> dict[tuple[str, str], int]:
-    """Rank rows with a value: 1 is best; equal means share the better rank ("1224")."""
+    """Rank rows with a value: 1 is best; equal means share the better rank ("1224").
+
+    The dict is in ranked order: better mean first, then more seeds, then name.
+    """
     sign = 1.0 if goal == "min" else -1.0
     ranked = sorted(
         (r for r in rows if r.interval),
@@ -399,10 +402,10 @@ def _summarise_task(
     ]
     _missing_seeds(rows, gaps)
     ranks = _competition_ranks(rows, goal)
-    best_key = next((key for key, rank in sorted(ranks.items(), key=lambda kv: kv[1])), None)
-    best = next((r for r in rows if r.key == best_key), None)
-    pick_key = min(((rank, key) for key, rank in ranks.items() if key[0] == "model"), default=None)
-    pick = next((r for r in rows if pick_key and r.key == pick_key[1]), None)
+    order = {key: position for position, key in enumerate(ranks)}
+    by_key = {r.key: r for r in rows}
+    best = by_key.get(next(iter(ranks), None))
+    pick = by_key.get(next((key for key in ranks if key[0] == "model"), None))
     latency_front = _fronts(rows, goal, "latency")
     params_front = _fronts(rows, goal, "params")
     finished = [
@@ -416,7 +419,7 @@ def _summarise_task(
         )
         for row in rows
     ]
-    finished.sort(key=lambda r: (r.rank is None, r.rank or 0, r.key))
+    finished.sort(key=lambda r: (order.get(r.key, len(order)), r.key))
     return TaskSummary(label, metric, goal, tuple(finished), tuple(gaps))
 
 

@@ -78,7 +78,7 @@ def _baseline_sentence(pick: Row, task: TaskSummary) -> str | None:
     baselines = [r for r in task.rows if r.kind == "baseline" and r.interval]
     if not baselines or pick.interval is None:
         return None
-    best = min(baselines, key=lambda r: (r.rank or 0, r.label))
+    best = baselines[0]
     assert best.interval is not None
     beats = (pick.rank or 0) < (best.rank or 0)
     relation = "beats" if beats else "does not beat"
@@ -119,7 +119,7 @@ def task_verdict(task: TaskSummary, alpha: float) -> list[str]:
     topologies = [r for r in task.rows if r.kind == "model" and r.interval]
     if task.metric is None or not topologies:
         return ["No verdict: no topology has a usable test result for this task (see the gaps)."]
-    pick = min(topologies, key=lambda r: (r.rank or 0, r.label))
+    pick = topologies[0]  # rows come in ranked order
     sentences = []
     best = task.best
     if best is not None and best.kind == "baseline" and best.key != pick.key:

@@ -1,0 +1,163 @@
+"""Per-task rows, ranks, Welch ties, gaps, exposure bias, cross-task view and verdicts, built from
+the demo records (invented numbers) and checked against scipy.stats where statistics are involved.
+"""
+
+import pytest
+from scipy import stats
+
+from loopzoo.report.loading import load_runs
+from loopzoo.report.summary import summarise
+from loopzoo.report.verdict import task_verdict
+
+
+@pytest.fixture
+def summary(demo_dir):
+    runs, skipped = load_runs(demo_dir)
+    return summarise(runs, skipped)
+
+
+def _task(summary, label):
+    return next(t for t in summary.tasks if t.label == label)
+
+
+def _row(task, label):
+    return next(r for r in task.rows if r.label == label)
+
+
+def test_tasks_and_rows_are_in_a_fixed_order(summary):
+    assert [t.label for t in summary.tasks] == ["flaky-rig", "pump-vibration", "valve-codes"]
+    pump = _task(summary, "pump-vibration")
+    assert [r.rank for r in pump.rows] == [1, 2, 3, 4, 5, 6]
+    assert pump.rows[-1].kind == "baseline"
+
+
+def test_quality_interval_and_welch_match_scipy(summary, demo):
+    pump = _task(summary, "pump-vibration")
+    best, lstm = _row(pump, "stacked"), _row(pump, "lstm")
+    assert pump.best.label == "stacked"
+    # Source: scipy.stats.t.interval / scipy.stats.ttest_ind(equal_var=False) on the row values.
+    values = best.values
+    low, high = stats.t.interval(0.95, 3, loc=stats.tmean(values), scale=stats.sem(values))
+    assert (best.interval.low, best.interval.high) == pytest.approx((low, high), rel=1e-10)
+    p = stats.ttest_ind(lstm.values, best.values, equal_var=False).pvalue
+    assert lstm.versus_best.p_value == pytest.approx(p, rel=1e-8)
+    assert lstm.versus_best.verdict == ("indistinguishable" if p >= 0.05 else "worse")
+    assert _row(pump, "gru").versus_best.verdict == "worse"
+
+
+def test_higher_is_better_task_ranks_descending(summary):
+    valve = _task(summary, "valve-codes")
+    means = [r.interval.mean for r in valve.rows]
+    assert means == sorted(means, reverse=True)
+    assert valve.best.label == "lstm" and valve.goal == "max"
+
+
+def test_every_status_is_counted_and_gaps_say_what_is_missing(summary):
+    flaky = _task(summary, "flaky-rig")
+    stacked, gru, lstm = (_row(flaky, n) for n in ("stacked", "gru", "lstm"))
+    assert stacked.counts == {"ok": 2, "diverged": 1, "failed": 0, "missing": 0}
+    assert gru.counts == {"ok": 1, "diverged": 0, "failed": 1, "missing": 1}
+    assert gru.interval is None and gru.rank is None and gru.versus_best.verdict == "no data"
+    assert lstm.interval.n == 1 and lstm.interval.half_width is None
+    gaps = "\n".join(flaky.gaps)
+    assert "stacked: seed 2 diverged at step 120: loss became NaN" in gaps
+    assert "gru: seed 0 failed: out of memory" in gaps
+    assert "gru: seed 1 is ok but has no finite test mse" in gaps
+    assert "lstm: no record for seed(s) 1, 2" in gaps
+    assert "gru: cost figures missing" in gaps
+    assert "lstm: only one usable seed" in gaps
+
+
+def test_one_seed_rows_are_untested_and_ties_prefer_more_seeds(summary):
+    flaky = _task(summary, "flaky-rig")
+    # stacked (0.02, 0.03) and lstm (0.025) have equal means; the row with more seeds leads.
+    assert flaky.best.label == "stacked"
+    assert _row(flaky, "lstm").rank == 1 and _row(flaky, "lstm").versus_best.verdict == "untested"
+
+
+def test_exposure_bias_and_ranking_on_free_running(summary, demo, tmp_path):
+    pump = _task(summary, "pump-vibration")
+    exposure = _row(pump, "output-feedback").exposure
+    assert exposure.settings == ("scheduled / inverse_sigmoid / distribution",)
+    assert exposure.gap.mean == pytest.approx(0.6 * exposure.teacher_forced.mean)
+    selected = demo.record(model="output-feedback", metrics={
+        "test": {"mse": 0.01}, "test_free_running": {"mse": 0.04}},
+        feedback={"mode": "scheduled", "schedule": "linear", "selected_on": "free_running"})
+    demo.write_records(tmp_path, [selected])
+    row = summarise(load_runs(tmp_path)[0]).tasks[0].rows[0]
+    assert row.values == (0.04,)
+    assert row.exposure.settings == ("scheduled / linear, selected on free_running",)
+
+
+def test_reach_and_cost_medians(summary):
+    pump = _task(summary, "pump-vibration")
+    lstm = _row(pump, "lstm")
+    # Demo decay rate 0.92 after training: 0.92**k <= 0.1 first at k = 28; 1/100 not within 30.
+    assert lstm.reach["final_10"] == 28 and lstm.reach["final_100"] == float("inf")
+    assert lstm.cost["step_latency_ms"] == pytest.approx(0.12)
+    assert lstm.batch_size == 64
+
+
+def test_pareto_and_cross_task_ranks(summary):
+    pump = _task(summary, "pump-vibration")
+    front = {r.label for r in pump.rows if r.front_latency}
+    assert front == {"stacked", "output-feedback"}
+    overall = {r.label: r for r in summary.overall}
+    assert overall["lstm"].tasks_ranked == 3
+    assert overall["output-feedback"].relative_latency == pytest.approx(1.0)
+    assert overall["hidden-feedback"].mean_rank == pytest.approx((5 + 4) / 2)
+
+
+def test_variants_get_distinct_labels(tmp_path, demo):
+    two = demo.record(run_id="x", config={"task": {"options": {"length": 50}},
+                                          "model": {"options": {"num_layers": 2}}})
+    three = demo.record(run_id="y", config={"task": {"options": {"length": 50}},
+                                            "model": {"options": {"num_layers": 3}}})
+    demo.write_records(tmp_path, [two, three])
+    labels = [r.label for r in summarise(load_runs(tmp_path)[0]).tasks[0].rows]
+    assert sorted(labels) == ["stacked (num_layers=2)", "stacked (num_layers=3)"]
+
+
+def test_duplicate_seed_keeps_latest_and_says_so(tmp_path, demo):
+    old = demo.record(run_id="old", finished="2026-12-01T10:00:00Z", metrics={"test": {"mse": 9.0}})
+    new = demo.record(run_id="new", finished="2026-12-01T11:00:00Z", metrics={"test": {"mse": 1.0}})
+    demo.write_records(tmp_path, [old, new])
+    task = summarise(load_runs(tmp_path)[0]).tasks[0]
+    assert task.rows[0].values == (1.0,)
+    assert any("ignoring records/old.json" in gap for gap in task.gaps)
+
+
+def test_verdicts_name_pick_ties_cost_and_baseline(summary):
+    text = " ".join(task_verdict(_task(summary, "valve-codes"), summary.alpha))
+    assert text.startswith("Pick lstm: accuracy 0.86")
+    assert "gru is statistically indistinguishable" in text
+    assert "take gru" in text and "faster per streaming step" in text
+    assert "beats the best classical baseline, majority-code" in text
+    pump = " ".join(task_verdict(_task(summary, "pump-vibration"), summary.alpha))
+    assert "2.3x the step latency of the fastest, output-feedback" in pump
+    flaky = " ".join(task_verdict(_task(summary, "flaky-rig"), summary.alpha))
+    assert "Caution: 1 of its 3 runs gave no usable result" in flaky
+
+
+def test_verdict_when_a_baseline_wins(tmp_path, demo):
+    records = [demo.record(run_id=f"m{s}", seed=s, metrics={"test": {"mse": 0.5 + s / 100}})
+               for s in range(3)]
+    records += [demo.record(run_id=f"b{s}", seed=s, kind="baseline", model="persistence",
+                            metrics={"test": {"mse": 0.1 + s / 100}}) for s in range(3)]
+    demo.write_records(tmp_path, records)
+    task = summarise(load_runs(tmp_path)[0]).tasks[0]
+    text = " ".join(task_verdict(task, 0.05))
+    assert "The classical baseline persistence is best" in text
+    assert "does not beat the best classical baseline" in text
+
+
+def test_task_without_primary_has_no_verdict(tmp_path, demo):
+    demo.write_records(tmp_path, [demo.record(primary=None)])
+    task = summarise(load_runs(tmp_path)[0]).tasks[0]
+    assert task.metric is None and task_verdict(task, 0.05)[0].startswith("No verdict")
+    assert any("no record names its primary metric" in gap for gap in task.gaps)
+
+
+def test_bad_alpha_is_refused():
+    with pytest.raises(ValueError, match="alpha"):
+        summarise([], alpha=5)
