@@ -10,12 +10,19 @@ Command line: ``loopzoo export ARTIFACT --format onnx --out DIR`` (``loopzoo.exp
 
 from loopzoo.export.cli import main
 from loopzoo.export.graphs import GRAPHS, graph_spec, graphs_for
-from loopzoo.export.parity import max_error, onnx_runner, program_runner
-from loopzoo.export.writers import FORMATS, export_graph, export_onnx, export_program
+from loopzoo.export.parity import max_error, onnx_runner, program_runner, runner_for
+from loopzoo.export.writers import (
+    FORMATS,
+    export_bytes,
+    export_graph,
+    export_onnx,
+    export_program,
+)
 
 __all__ = [
     "FORMATS",
     "GRAPHS",
+    "export_bytes",
     "export_graph",
     "export_onnx",
     "export_program",
@@ -25,4 +32,5 @@ __all__ = [
     "max_error",
     "onnx_runner",
     "program_runner",
+    "runner_for",
 ]

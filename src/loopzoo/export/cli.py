@@ -10,6 +10,7 @@ seen, or why a graph was not written.
 from __future__ import annotations
 
 import argparse
+import re
 import sys
 from pathlib import Path
 from typing import Any
@@ -19,14 +20,14 @@ import torch
 from loopzoo import _io
 from loopzoo.artifacts import ArtifactError, load
 from loopzoo.export.graphs import graph_spec, graphs_for
-from loopzoo.export.parity import max_error, onnx_runner, program_runner
-from loopzoo.export.writers import FORMATS, SUFFIXES, export_graph
+from loopzoo.export.parity import max_error, runner_for
+from loopzoo.export.writers import FORMATS, SUFFIXES, export_bytes
 
 __all__ = ["main", "MANIFEST_FILE", "CHECK_BATCH_SIZES", "CHECK_LENGTHS"]
 
 MANIFEST_FILE = "export.json"
 CHECK_BATCH_SIZES = (1, 3, 8)
-CHECK_LENGTHS = (1, 4, 13)
+CHECK_LENGTHS = (1, 2, 5, 13)
 _DEFAULT_TOLERANCE = 1e-5  # float32 parity target of the export issue
 
 
@@ -94,31 +95,54 @@ def main(argv: list[str] | None = None) -> int:
     for graph in wanted:
         path = args.out / f"{graph}{SUFFIXES[args.format]}"
         try:
-            export_graph(model, graph, args.format, path)
-        except Exception as error:  # the exporters raise many unrelated types
-            reason = f"{type(error).__name__}: {str(error).splitlines()[0] if str(error) else ''}"
-            manifest["not_exported"][graph] = reason
-            print(f"loopzoo export: {graph} graph not exported ({reason})", file=sys.stderr)
+            data, entry = _export_checked(model, graph, args, path)
+        except _NotExported as refusal:
+            path.unlink(missing_ok=True)  # no stale file from an earlier export stays
+            manifest["not_exported"][graph] = str(refusal)
+            print(f"loopzoo export: {graph} graph not exported: {refusal}", file=sys.stderr)
             if graph == "step" or args.graph != "all":
                 status = 1
             continue
-        entry = _describe(model, graph, path)
-        if not args.no_check:
-            runner = onnx_runner(path) if args.format == "onnx" else program_runner(path, graph)
-            error = max_error(model, graph, runner, CHECK_BATCH_SIZES, CHECK_LENGTHS)
-            entry["max_error"] = error
-            entry["checked"] = {"batch_sizes": CHECK_BATCH_SIZES, "lengths": CHECK_LENGTHS}
-            if not error <= args.tolerance:
-                print(
-                    f"loopzoo export: {path} differs from the eager model by {error:.3g} "
-                    f"(tolerance {args.tolerance:g})",
-                    file=sys.stderr,
-                )
-                status = 1
+        _io.atomic_write_bytes(path, data)
         manifest["graphs"][graph] = entry
         print(f"{path}  {_summary(entry)}")
     _io.atomic_write_json(args.out / MANIFEST_FILE, manifest)
     return status
+
+
+class _NotExported(Exception):
+    """A graph that failed to export or to match the eager model; the message says why."""
+
+
+def _export_checked(
+    model: torch.nn.Module, graph: str, args: argparse.Namespace, path: Path
+) -> tuple[bytes, dict[str, Any]]:
+    """The graph's file contents and manifest entry, checked before anything is written."""
+    entry = _describe(model, graph, path)
+    try:
+        data = export_bytes(model, graph, args.format)
+        if args.no_check:
+            return data, entry
+        runner = runner_for(args.format, data, graph)
+        error = max_error(model, graph, runner, CHECK_BATCH_SIZES, CHECK_LENGTHS)
+    except Exception as failure:  # the exporters and runtimes raise many unrelated types
+        raise _NotExported(_reason(failure)) from failure
+    if not error <= args.tolerance:
+        raise _NotExported(
+            f"differs from the eager model by {error:.3g} (tolerance {args.tolerance:g})"
+        )
+    entry["max_error"] = error
+    entry["checked"] = {"batch_sizes": CHECK_BATCH_SIZES, "lengths": CHECK_LENGTHS}
+    return data, entry
+
+
+def _reason(error: BaseException) -> str:
+    """The innermost cause of an exporter error, on one line without terminal colour codes."""
+    while error.__cause__ is not None:
+        error = error.__cause__
+    lines = [line.strip() for line in re.sub(r"\x1b\[[0-9;]*m", "", str(error)).splitlines()]
+    first = next((line for line in lines if line), "")
+    return f"{type(error).__name__}: {first[:300]}"
 
 
 def _describe(model: torch.nn.Module, graph: str, path: Path) -> dict[str, Any]:

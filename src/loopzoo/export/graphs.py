@@ -8,7 +8,7 @@
   topologies that feed back outputs: teacher forcing has no time loop, so ``forward`` exports as is.
 
 All tensors are batch first: x_t (B, input_size), x (B, T, input_size), y (B, T, output_size),
-targets as in training (B, T, output_size) floats or (B, T) class ids, state as ``init_state(B)``.
+targets (B, T, output_size) floats (one-hot rows for class outputs), state as ``init_state(B)``.
 """
 
 from __future__ import annotations
@@ -46,9 +46,12 @@ class _SequenceGraph(torch.nn.Module):
         self.model = model
 
     def forward(self, x: torch.Tensor, state: tuple[torch.Tensor, ...]):
+        # ``_step`` is ``step`` without its argument checks: the checks format messages with
+        # Python strings, which scan's tracer cannot follow; the graph's typed inputs stand in.
+        # The clone: scan refuses a step whose output aliases its carry (output feedback).
         def advance(carry, x_t):
-            y_t, next_state = self.model.step(x_t, carry)
-            return next_state, y_t
+            y_t, next_state = self.model._step(x_t, tuple(carry))
+            return next_state, y_t.clone()
 
         final, y = scan(advance, tuple(state), x, dim=1)
         return (y, *final)
@@ -60,8 +63,10 @@ class _TeacherForcedGraph(torch.nn.Module):
         self.model = model
 
     def forward(self, x: torch.Tensor, targets: torch.Tensor, state: tuple[torch.Tensor, ...]):
-        y, final = self.model(x, tuple(state), targets=targets, teacher_forcing=1.0)
-        return (y, *final)
+        # ``_sequence`` is ``forward`` without its checks, whose data-dependent branches (finite
+        # values, class-id ranges) cannot be traced. The clones keep outputs from aliasing inputs.
+        y, final = self.model._sequence(x, tuple(state), None, targets, 1.0)
+        return (y, *(t.clone() for t in final))
 
 
 @dataclass(frozen=True)
@@ -115,17 +120,9 @@ def graph_spec(model: torch.nn.Module, name: str) -> GraphSpec:
     return GraphSpec(
         name=name,
         module=_TeacherForcedGraph(model),
-        example_inputs=(x, example_targets(model, _TRACE_BATCH, _TRACE_TIME), state),
+        example_inputs=(x, torch.zeros(_TRACE_BATCH, _TRACE_TIME, model.output_size), state),
         dynamic_shapes=({0: batch, 1: time}, {0: batch, 1: time}, state_dims),
         input_names=["x", "targets", *state_names],
         output_names=["y", *final_names],
     )
 
-
-def example_targets(model: torch.nn.Module, batch: int, time: int) -> torch.Tensor:
-    """Targets of the kind ``model`` trains on: class ids if it feeds back classes, else floats."""
-    if getattr(model, "options", {}).get("feedback") in ("one-hot", "distribution") or getattr(
-        model, "classifies", False
-    ):
-        return torch.zeros(batch, time, dtype=torch.long)
-    return torch.zeros(batch, time, model.output_size)

@@ -15,9 +15,9 @@ import numpy as np
 import torch
 
 from loopzoo._registry import unknown_choice
-from loopzoo.export.graphs import example_targets, graphs_for
+from loopzoo.export.graphs import graphs_for
 
-__all__ = ["Runner", "max_error", "onnx_runner", "program_runner"]
+__all__ = ["Runner", "max_error", "onnx_runner", "program_runner", "runner_for"]
 
 # Calls a graph on its inputs in order (x_t / x, [targets], state_0, ...) and returns its outputs.
 Runner = Callable[[Sequence[torch.Tensor]], list[torch.Tensor]]
@@ -30,7 +30,11 @@ def onnx_runner(model_bytes_or_path: bytes | str | os.PathLike[str]) -> Runner:
     source = model_bytes_or_path
     if not isinstance(source, bytes):
         source = Path(source).read_bytes()
-    session = onnxruntime.InferenceSession(source, providers=["CPUExecutionProvider"])
+    options = onnxruntime.SessionOptions()
+    options.log_severity_level = 3  # errors only: not its notes on unused initialisers
+    session = onnxruntime.InferenceSession(
+        source, sess_options=options, providers=["CPUExecutionProvider"]
+    )
     names = [i.name for i in session.get_inputs()]
 
     def run(inputs: Sequence[torch.Tensor]) -> list[torch.Tensor]:
@@ -45,7 +49,8 @@ def program_runner(
 ) -> Runner:
     """A ``Runner`` over a saved ``torch.export`` program of ``graph`` (``torch.export.load``)."""
     source = program_bytes_or_path
-    module = torch.export.load(io.BytesIO(source) if isinstance(source, bytes) else source).module()
+    data = source if isinstance(source, bytes) else Path(source).read_bytes()
+    module = torch.export.load(io.BytesIO(data)).module()
     leading = 2 if graph == "sequence-teacher-forced" else 1
 
     def run(inputs: Sequence[torch.Tensor]) -> list[torch.Tensor]:
@@ -53,6 +58,15 @@ def program_runner(
             return list(module(*inputs[:leading], tuple(inputs[leading:])))
 
     return run
+
+
+def runner_for(fmt: str, source: bytes | str | os.PathLike[str], graph: str) -> Runner:
+    """The ``Runner`` of an exported file of format ``fmt`` ("onnx" or "torch-export")."""
+    if fmt == "onnx":
+        return onnx_runner(source)
+    if fmt == "torch-export":
+        return program_runner(source, graph)
+    raise unknown_choice("export format", fmt, ["onnx", "torch-export"])
 
 
 def max_error(
@@ -82,7 +96,7 @@ def max_error(
             )
             targets = None
             if graph == "sequence-teacher-forced":
-                targets = _random_like(example_targets(model, batch, steps), model, generator)
+                targets = torch.randn(batch, steps, model.output_size, generator=generator)
             with torch.no_grad():
                 y_ref, final_ref = model(
                     x, state, targets=targets, teacher_forcing=None if targets is None else 1.0
@@ -106,12 +120,6 @@ def _stream(runner: Runner, x: torch.Tensor, state: tuple[torch.Tensor, ...]):
         y_t, *state = runner([x[:, t].contiguous(), *state])
         outputs.append(y_t)
     return torch.stack(outputs, dim=1), state
-
-
-def _random_like(template: torch.Tensor, model: torch.nn.Module, generator: torch.Generator):
-    if template.dtype == torch.long:
-        return torch.randint(0, model.output_size, template.shape, generator=generator)
-    return torch.randn(template.shape, generator=generator)
 
 
 def _gap(a: torch.Tensor, b: torch.Tensor) -> float:

@@ -14,7 +14,7 @@ from loopzoo import _io
 from loopzoo._registry import unknown_choice
 from loopzoo.export.graphs import graph_spec
 
-__all__ = ["FORMATS", "SUFFIXES", "export_graph", "export_onnx", "export_program"]
+__all__ = ["FORMATS", "SUFFIXES", "export_bytes", "export_graph", "export_onnx", "export_program"]
 
 FORMATS = ("onnx", "torch-export")
 SUFFIXES = {"onnx": ".onnx", "torch-export": ".pt2"}
@@ -25,7 +25,11 @@ def export_program(model: torch.nn.Module, graph: str) -> torch.export.ExportedP
     spec = graph_spec(model, graph)
     with torch.no_grad():
         return torch.export.export(
-            spec.module, spec.example_inputs, dynamic_shapes=spec.dynamic_shapes, strict=False
+            spec.module,
+            spec.example_inputs,
+            dynamic_shapes=spec.dynamic_shapes,
+            strict=False,
+            prefer_deferred_runtime_asserts_over_guards=True,
         )
 
 
@@ -57,17 +61,20 @@ def export_onnx(model: torch.nn.Module, graph: str) -> bytes:
     return program.model_proto.SerializeToString()
 
 
-def export_graph(
-    model: torch.nn.Module, graph: str, fmt: str, path: str | os.PathLike[str]
-) -> Path:
-    """Write ``graph`` of ``model`` in format ``fmt`` ("onnx" or "torch-export") to ``path``."""
+def export_bytes(model: torch.nn.Module, graph: str, fmt: str) -> bytes:
+    """The file contents of ``graph`` of ``model`` in format ``fmt`` ("onnx" or "torch-export")."""
     if fmt not in FORMATS:
         raise unknown_choice("export format", fmt, list(FORMATS))
     if fmt == "onnx":
-        data = export_onnx(model, graph)
-    else:
-        buffer = io.BytesIO()
-        torch.export.save(export_program(model, graph), buffer)
-        data = buffer.getvalue()
-    _io.atomic_write_bytes(path, data)
+        return export_onnx(model, graph)
+    buffer = io.BytesIO()
+    torch.export.save(export_program(model, graph), buffer)
+    return buffer.getvalue()
+
+
+def export_graph(
+    model: torch.nn.Module, graph: str, fmt: str, path: str | os.PathLike[str]
+) -> Path:
+    """Write ``graph`` of ``model`` in format ``fmt`` to ``path`` (atomically) and return it."""
+    _io.atomic_write_bytes(path, export_bytes(model, graph, fmt))
     return Path(path)
