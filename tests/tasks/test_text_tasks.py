@@ -79,7 +79,7 @@ def test_fleet_log_is_seeded_and_well_formed():
     (b"", "empty"),
     (b"   \n\n", "empty"),
     (b"ok \xff\xfe", "not UTF-8: byte 3"),
-    (b"tiny", "at least 20 characters"),
+    (b"tiny", "at least 18 characters"),
 ])
 def test_bad_text_files(tmp_path, content, message):
     path = tmp_path / "bad.txt"
@@ -88,6 +88,17 @@ def test_bad_text_files(tmp_path, content, message):
     with pytest.raises(ValueError, match=message):
         loopzoo.tasks.create("text", path=str(path))
     assert listing(tmp_path) == before, "nothing is written for a bad input"
+
+
+def test_minimum_text_length_is_exact(tmp_path):
+    # The stated minimum (18 at the default 10 % / 10 %) works and one character less fails.
+    path = tmp_path / "short.txt"
+    path.write_text("abcdefghijklmnopqr", encoding="utf-8")
+    task = loopzoo.tasks.create("text", path=str(path))
+    assert all(len(task.split(name)) == 1 for name in ("train", "val", "test"))
+    path.write_text("abcdefghijklmnopq", encoding="utf-8")
+    with pytest.raises(ValueError, match="has 17 characters.*at least 18"):
+        loopzoo.tasks.create("text", path=str(path))
 
 
 def test_missing_text_file_and_missing_path(tmp_path):

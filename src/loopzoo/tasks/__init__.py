@@ -14,7 +14,15 @@ from __future__ import annotations
 from typing import Any
 
 # Importing a task file registers its tasks; the order here is the order of ``available()``.
-from loopzoo.tasks import fleet_log, long_lag, parity, reber, sines, text_file  # noqa: F401
+from loopzoo.tasks import (  # noqa: F401
+    fleet_log,
+    long_lag,
+    open_series,
+    parity,
+    reber,
+    sines,
+    text_file,
+)
 from loopzoo.tasks._base import SPLITS, ClassificationTask, RegressionTask, Split, Task
 from loopzoo.tasks._catalog import TASKS
 

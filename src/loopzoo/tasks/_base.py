@@ -26,6 +26,8 @@ __all__ = [
     "Task",
     "make_split",
     "one_hot",
+    "part_bounds",
+    "shortest_record",
     "sequence_spans",
     "split_generators",
 ]
@@ -91,6 +93,23 @@ def sequence_spans(sizes: dict[str, int]) -> dict[str, np.ndarray]:
         spans[name] = np.stack([draws, draws], axis=1)
         start += sizes[name]
     return spans
+
+
+def part_bounds(total: int, val_fraction: float,
+                test_fraction: float) -> dict[str, tuple[int, int]]:
+    """Chronological [start, end) of train, val and test for ``total`` steps of a record."""
+    val_start = round(total * (1 - val_fraction - test_fraction))
+    test_start = round(total * (1 - test_fraction))
+    return {"train": (0, val_start), "val": (val_start, test_start), "test": (test_start, total)}
+
+
+def shortest_record(per_part: int, val_fraction: float, test_fraction: float) -> int:
+    """The fewest steps for which ``part_bounds`` gives every part at least ``per_part`` steps."""
+    total = 3 * per_part
+    while min(b - a for a, b in part_bounds(total, val_fraction,
+                                            test_fraction).values()) < per_part:
+        total += 1
+    return total
 
 
 def one_hot(ids: np.ndarray, classes: int) -> np.ndarray:
@@ -199,7 +218,8 @@ class Task(ABC):
 class RegressionTask(Task):
     """Targets are real values; errors are reported in data units (``scaler`` inverted).
 
-    Subclasses set ``scaler`` (for the targets) and may set ``horizons`` (one per output).
+    Subclasses set ``scaler`` (for the targets) and may name the output channels (e.g. by
+    horizon) in ``channel_names``, which adds a per-channel MSE.
     """
 
     kind = "regression"
@@ -207,11 +227,11 @@ class RegressionTask(Task):
     goal = "min"
 
     scaler: Standardizer
-    horizons: tuple[int, ...] | None = None
+    channel_names: tuple[str, ...] | None = None
 
     def _metrics(self, prediction: torch.Tensor, split: Split) -> dict[str, float]:
         return regression_metrics(self.scaler.inverse(prediction), self.scaler.inverse(split.y),
-                                  split.mask, self.horizons)
+                                  split.mask, self.channel_names)
 
     def score_in_data_units(self, prediction: np.ndarray, split: Split | str) -> dict[str, float]:
         """``score`` for a prediction given in data units (how the baselines are scored)."""

@@ -15,18 +15,19 @@ IMPOSSIBLE_LOGIT = -1.0e4
 
 
 def regression_metrics(prediction: torch.Tensor, target: torch.Tensor, mask: torch.Tensor,
-                       horizons: Sequence[int] | None = None) -> dict[str, float]:
+                       channel_names: Sequence[str] | None = None) -> dict[str, float]:
     """MSE, MAE and RMSE over masked positions and all output channels, in the given units.
 
-    prediction, target: (N, T, O); mask: (N, T) bool. With ``horizons`` (one per channel, more
-    than one) the per-horizon MSE is added as ``mse_h{h}``.
+    prediction, target: (N, T, O); mask: (N, T) bool. With ``channel_names`` (one per channel,
+    more than one) each channel's MSE is added as ``mse_{name}``, e.g. ``mse_h5``.
     """
     error = (prediction - target)[mask]  # (M, O)
     mse = float(error.pow(2).mean())
     metrics = {"mse": mse, "rmse": math.sqrt(mse), "mae": float(error.abs().mean())}
-    if horizons is not None and len(horizons) > 1:
+    if channel_names is not None and len(channel_names) > 1:
         per_channel = error.pow(2).mean(dim=0)
-        metrics.update({f"mse_h{h}": float(v) for h, v in zip(horizons, per_channel, strict=True)})
+        metrics.update({f"mse_{name}": float(v)
+                        for name, v in zip(channel_names, per_channel, strict=True)})
     return metrics
 
 

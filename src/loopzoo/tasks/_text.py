@@ -7,7 +7,7 @@ from typing import Any
 
 import numpy as np
 
-from loopzoo.tasks._base import SPLITS
+from loopzoo.tasks._base import SPLITS, part_bounds, shortest_record
 from loopzoo.tasks._options import check_fraction, check_int
 from loopzoo.tasks._symbols import NextSymbolTask
 
@@ -46,15 +46,10 @@ class CharacterTask(NextSymbolTask):
     def _prepare_text(self) -> None:
         """Check the text is long enough and fix the alphabet and part boundaries."""
         total = len(self.text)
-        val_start = round(total * (1 - self.options.val_fraction - self.options.test_fraction))
-        test_start = round(total * (1 - self.options.test_fraction))
-        self._bounds = {"train": (0, val_start), "val": (val_start, test_start),
-                        "test": (test_start, total)}
+        self._bounds = part_bounds(total, self.options.val_fraction, self.options.test_fraction)
         shortest = min(end - start for start, end in self._bounds.values())
         if shortest < 2:
-            fraction = min(self.options.val_fraction, self.options.test_fraction,
-                           1 - self.options.val_fraction - self.options.test_fraction)
-            needed = int(np.ceil(2 / fraction))
+            needed = shortest_record(2, self.options.val_fraction, self.options.test_fraction)
             raise ValueError(f"{self.source}: the text has {total} characters; each of train, val "
                              f"and test needs at least 2, so at least {needed} characters are "
                              f"needed with val_fraction={self.options.val_fraction} and "

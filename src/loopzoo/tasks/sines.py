@@ -65,6 +65,7 @@ class SinesTask(RegressionTask):
         super().__init__(seed, **options)
         self.horizons = self.options.horizons
         self.output_size = len(self.horizons)
+        self.channel_names = tuple(f"h{h}" for h in self.horizons)
         self.scaler = Standardizer.identity(self.output_size)
         self._clean: dict[str, np.ndarray] = {}
 

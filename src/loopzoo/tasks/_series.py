@@ -1,0 +1,223 @@
+"""Forecasting a recorded series: chronological parts, (context window -> horizons) samples,
+scaling fitted on the training part, and the classical forecasting baselines."""
+
+from __future__ import annotations
+
+import dataclasses
+import math
+from abc import abstractmethod
+from typing import Any
+
+import numpy as np
+
+from loopzoo.tasks._base import (
+    SPLITS,
+    RegressionTask,
+    Split,
+    make_split,
+    part_bounds,
+    shortest_record,
+)
+from loopzoo.tasks._options import check_fraction, check_int, check_int_list
+from loopzoo.tasks._scaling import Standardizer
+
+__all__ = ["SeriesData", "SeriesOptions", "SeriesTask"]
+
+
+@dataclasses.dataclass(frozen=True)
+class SeriesOptions:
+    window: int = 20  # T: context steps per sample; the forecast is scored after the last one
+    horizons: tuple[int, ...] = (1,)  # steps ahead of the window's last step, one output each
+    val_fraction: float = 0.15  # share of the time steps after the training part
+    test_fraction: float = 0.15  # share of the time steps at the end
+    season: int | None = None  # period in steps for the seasonal-naive baseline (None: no season)
+    ar_order: int | None = None  # AR lags; None chooses 1..min(window, 12) on the validation part
+
+    def __post_init__(self) -> None:
+        check_int("window", self.window, minimum=1, maximum=1_000_000)
+        object.__setattr__(self, "horizons", check_int_list("horizons", self.horizons))
+        check_fraction("val_fraction", self.val_fraction)
+        check_fraction("test_fraction", self.test_fraction)
+        if self.val_fraction + self.test_fraction >= 1:
+            raise ValueError(f"val_fraction + test_fraction must be below 1, got "
+                             f"{self.val_fraction} + {self.test_fraction}")
+        if self.season is not None:
+            check_int("season", self.season, minimum=1, maximum=self.window)
+        if self.ar_order is not None:
+            check_int("ar_order", self.ar_order, minimum=1, maximum=self.window)
+
+
+@dataclasses.dataclass(frozen=True)
+class SeriesData:
+    """A recorded multichannel series in data units.
+
+    values: (L, C) float64, every column an input; targets: the column indices to forecast;
+    imputed: (L,) bool, steps whose target values were filled in (never scored).
+    """
+
+    source: str
+    values: np.ndarray
+    columns: tuple[str, ...]
+    targets: tuple[int, ...]
+    imputed: np.ndarray
+    facts: dict[str, Any] = dataclasses.field(default_factory=dict)
+
+
+class SeriesTask(RegressionTask):
+    """Forecast the target columns ``horizons`` steps after a context window of every column.
+
+    Sample i of a part reads steps [i, i + T + max h); x = the T context steps (all columns,
+    standardised with the training part's mean and std), y[:, t] = the targets h steps after
+    step t (scored only at t = T - 1). No sample straddles two parts. Output channel order:
+    for each target column, each horizon. Baselines: "persistence" (the last context value),
+    "seasonal-naive" (the value one season before the forecast step, if ``season`` is set) and
+    "ar" (statsmodels AutoReg with a constant, fitted per target column on the training part,
+    iterated for later horizons).
+    Subclasses implement ``_load`` returning a ``SeriesData``.
+    """
+
+    seed_changes_data = False
+
+    def __init__(self, seed: int = 0, **options: Any) -> None:
+        super().__init__(seed, **options)
+        self.data = self._load()
+        self.horizons = self.options.horizons
+        self._bounds = part_bounds(len(self.data.values), self.options.val_fraction,
+                                   self.options.test_fraction)
+        self._check_length()
+        train_start, train_end = self._bounds["train"]
+        self.input_scaler = Standardizer.fit(self.data.values[train_start:train_end])
+        means = [self.input_scaler.mean[c] for c in self.data.targets for _ in self.horizons]
+        stds = [self.input_scaler.std[c] for c in self.data.targets for _ in self.horizons]
+        self.scaler = Standardizer(mean=tuple(means), std=tuple(stds))
+        self.input_size = len(self.data.columns)
+        self.output_size = len(self.data.targets) * len(self.horizons)
+        self.channel_names = tuple(
+            f"{self.data.columns[c]}_h{h}" if len(self.data.targets) > 1 else f"h{h}"
+            for c in self.data.targets for h in self.horizons)
+        self._starts: dict[str, np.ndarray] = {}
+        self._ar_order: int | None = None
+
+    @abstractmethod
+    def _load(self) -> SeriesData:
+        """Read the series (data units), raising a clear error for bad input."""
+
+    @property
+    def _reach(self) -> int:
+        """Steps one sample reads: the window plus the furthest horizon."""
+        return self.options.window + max(self.horizons)
+
+    def _check_length(self) -> None:
+        total = len(self.data.values)
+        shortest = min(end - start for start, end in self._bounds.values())
+        if shortest >= self._reach:
+            return
+        needed = shortest_record(self._reach, self.options.val_fraction,
+                                 self.options.test_fraction)
+        raise ValueError(
+            f"{self.data.source}: {total} rows are too few for window={self.options.window} and "
+            f"horizons up to {max(self.horizons)}: each of train, val and test needs at least "
+            f"{self._reach} consecutive rows, so at least {needed} rows are needed with "
+            f"val_fraction={self.options.val_fraction} and test_fraction="
+            f"{self.options.test_fraction} (or use a shorter window)")
+
+    def _sample_starts(self, name: str) -> np.ndarray:
+        """First step of every sample of a part whose scored targets are all observed."""
+        if name not in self._starts:
+            start, end = self._bounds[name]
+            starts = np.arange(start, end - self._reach + 1)
+            forecast_steps = starts[:, None] + self.options.window - 1 + np.array(self.horizons)
+            self._starts[name] = starts[~self.data.imputed[forecast_steps].any(axis=1)]
+        return self._starts[name]
+
+    def _make_splits(self) -> dict[str, Split]:
+        scaled = self.input_scaler.transform(self.data.values)
+        window = self.options.window
+        splits = {}
+        for name in SPLITS:
+            starts = self._sample_starts(name)
+            if starts.size == 0:
+                raise ValueError(f"{self.data.source}: the {name} part has no sample whose "
+                                 "forecast steps are observed (all are filled-in values)")
+            steps = starts[:, None] + np.arange(window)  # (N, T)
+            ahead = [scaled[steps + h][..., c] for c in self.data.targets for h in self.horizons]
+            mask = np.zeros((len(starts), window), dtype=bool)
+            mask[:, -1] = True
+            span = np.stack([starts, starts + self._reach - 1], axis=1)
+            splits[name] = make_split(scaled[steps], np.stack(ahead, axis=-1), mask,
+                                      np.full(len(starts), window), span, classes=False)
+        return splits
+
+    def _targets_in_window(self, name: str) -> np.ndarray:
+        """(N, T, targets) raw target values of each sample's context window."""
+        starts = self._sample_starts(name)
+        steps = starts[:, None] + np.arange(self.options.window)
+        return self.data.values[steps][..., list(self.data.targets)]
+
+    def _full_prediction(self, forecast: np.ndarray) -> np.ndarray:
+        """(N, channels) forecasts in data units -> (N, T, channels), placed at the last step."""
+        prediction = np.zeros((len(forecast), self.options.window, self.output_size))
+        prediction[:, -1] = forecast
+        return prediction
+
+    def baselines(self) -> dict[str, dict[str, float]]:
+        context = self._targets_in_window("test")
+        repeat = len(self.horizons)
+        results = {"persistence": np.repeat(context[:, -1, :], repeat, axis=-1)}
+        season = self.options.season
+        if season is not None:
+            # the forecast step minus the smallest whole number of seasons inside the window
+            columns = [context[:, self.options.window - 1 + h - season * math.ceil(h / season), c]
+                       for c in range(len(self.data.targets)) for h in self.horizons]
+            results["seasonal-naive"] = np.stack(columns, axis=-1)
+        results["ar"] = self._ar_forecast(context, self.ar_order())
+        test = self.split("test")
+        return {name: self.score_in_data_units(self._full_prediction(forecast), test)
+                for name, forecast in results.items()}
+
+    def _ar_params(self, order: int) -> list[np.ndarray]:
+        """statsmodels AutoReg (constant + ``order`` lags) per target, fitted on the train part."""
+        from statsmodels.tsa.ar_model import AutoReg
+
+        start, end = self._bounds["train"]
+        return [np.asarray(AutoReg(self.data.values[start:end, c], lags=order, trend="c")
+                           .fit().params) for c in self.data.targets]
+
+    def _ar_forecast(self, context: np.ndarray, order: int) -> np.ndarray:
+        """(N, T, targets) windows -> (N, channels) iterated AR forecasts at the horizons."""
+        columns = []
+        for c, params in enumerate(self._ar_params(order)):
+            history = list(context[:, -order:, c].T)  # oldest first
+            ahead = {}
+            for step in range(1, max(self.horizons) + 1):
+                lags = np.stack(history[::-1][:order], axis=1)  # (N, order), lag 1 first
+                history.append(params[0] + lags @ params[1:])
+                ahead[step] = history[-1]
+            columns += [ahead[h] for h in self.horizons]
+        return np.stack(columns, axis=-1)
+
+    def ar_order(self) -> int:
+        """The AR order: ``ar_order`` if given, else the lowest validation MSE in 1..min(T, 12)
+        (also capped at a third of the training rows so every fit has several rows per lag)."""
+        if self.options.ar_order is not None:
+            return self.options.ar_order
+        if self._ar_order is None:
+            context = self._targets_in_window("val")
+            val = self.split("val")
+            errors = {}
+            train_rows = self._bounds["train"][1]
+            for order in range(1, max(1, min(self.options.window, 12, train_rows // 3)) + 1):
+                prediction = self._full_prediction(self._ar_forecast(context, order))
+                errors[order] = self.score_in_data_units(prediction, val)["mse"]
+            self._ar_order = min(errors, key=errors.get)
+        return self._ar_order
+
+    def _facts(self) -> dict[str, Any]:
+        return {"source": self.data.source, "rows": len(self.data.values),
+                "columns": list(self.data.columns),
+                "targets": [self.data.columns[c] for c in self.data.targets],
+                "parts": {name: {"first_row": a, "end_row": b}
+                          for name, (a, b) in self._bounds.items()},
+                "scaling": self.input_scaler.describe(), "ar_order": self.ar_order(),
+                "ar_order_chosen_on": "given" if self.options.ar_order else "validation MSE",
+                **self.data.facts}
