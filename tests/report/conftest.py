@@ -149,16 +149,30 @@ def write_records(directory: Path, records: list[dict[str, Any]]) -> Path:
     return directory
 
 
-@pytest.fixture
+@pytest.fixture(scope="session")
 def demo() -> SimpleNamespace:
     """The demo helpers for tests (pytest's importlib mode cannot import conftest directly)."""
     return SimpleNamespace(record=record, demo_records=demo_records, write_records=write_records)
 
 
+def _demo_out(out: Path) -> Path:
+    write_records(out, demo_records())
+    (out / "records" / "notes.json").write_text('{"hello": "not a record"}', encoding="utf-8")
+    (out / "records" / "torn.json").write_text('{"schema": "loopzoo.run/1", "run', encoding="utf-8")
+    return out
+
+
 @pytest.fixture
 def demo_dir(tmp_path: Path) -> Path:
     """An output directory with every demo record plus two foreign files to be skipped."""
-    out = write_records(tmp_path / "out", demo_records())
-    (out / "records" / "notes.json").write_text('{"hello": "not a record"}', encoding="utf-8")
-    (out / "records" / "torn.json").write_text('{"schema": "loopzoo.run/1", "run', encoding="utf-8")
+    return _demo_out(tmp_path / "out")
+
+
+@pytest.fixture(scope="session")
+def built_demo(tmp_path_factory: pytest.TempPathFactory) -> Path:
+    """A demo output directory whose report was built once (read it; do not modify it)."""
+    from loopzoo.report import build_report
+
+    out = _demo_out(tmp_path_factory.mktemp("built") / "out")
+    build_report(out)
     return out
