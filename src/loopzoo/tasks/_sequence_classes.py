@@ -1,0 +1,87 @@
+"""Whole-sequence classification: one class per sequence, scored at its last valid step."""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+
+import numpy as np
+
+from loopzoo.tasks._base import ClassificationTask, Split, make_split
+from loopzoo.tasks._scoring import IMPOSSIBLE_LOGIT
+
+__all__ = ["SequenceClassTask", "encode_sequences", "stratified_parts"]
+
+
+def encode_sequences(sequences: Sequence[np.ndarray], labels: np.ndarray,
+                     span: np.ndarray) -> Split:
+    """(L_i, F) feature arrays and one label each -> a Split padded to the longest sequence.
+
+    y holds the label at every valid step; only the last valid step is masked.
+    """
+    lengths = np.array([len(s) for s in sequences], dtype=np.int64)
+    count, steps, features = len(sequences), int(lengths.max()), sequences[0].shape[1]
+    x = np.zeros((count, steps, features), dtype=np.float32)
+    y = np.zeros((count, steps), dtype=np.int64)
+    mask = np.zeros((count, steps), dtype=bool)
+    for row, (values, label) in enumerate(zip(sequences, labels, strict=True)):
+        x[row, : len(values)] = values
+        y[row, : len(values)] = label
+        mask[row, len(values) - 1] = True
+    return make_split(x, y, mask, lengths, span, classes=True)
+
+
+def stratified_parts(labels: np.ndarray, fractions: dict[str, float],
+                     rng: np.random.Generator) -> dict[str, np.ndarray]:
+    """Seeded split of item indices, each class divided in the given proportions.
+
+    ``fractions`` gives the val and test shares; train takes the rest. Indices are sorted.
+    """
+    parts: dict[str, list[int]] = {"train": [], "val": [], "test": []}
+    for label in np.unique(labels):
+        members = rng.permutation(np.flatnonzero(labels == label))
+        n_val = round(len(members) * fractions["val"])
+        n_test = round(len(members) * fractions["test"])
+        parts["val"] += list(members[:n_val])
+        parts["test"] += list(members[n_val : n_val + n_test])
+        parts["train"] += list(members[n_val + n_test :])
+    return {name: np.sort(np.array(items, dtype=np.int64)) for name, items in parts.items()}
+
+
+class SequenceClassTask(ClassificationTask):
+    """Sequence classification; baselines scored at each test sequence's last valid step.
+
+    "logistic": scikit-learn LogisticRegression (max_iter=5000, otherwise its defaults) on the
+    flattened, zero-padded input sequences of the training part. "prior": the training class
+    frequencies, add-one smoothed, for every sequence.
+    """
+
+    metric = "accuracy"
+    goal = "max"
+
+    @staticmethod
+    def _flat(split: Split) -> tuple[np.ndarray, np.ndarray]:
+        labels = split.y[np.arange(len(split)), split.lengths - 1].numpy()
+        return split.x.reshape(len(split), -1).numpy().astype(np.float64), labels
+
+    def _at_last_step(self, split: Split, log_probs: np.ndarray) -> np.ndarray:
+        logits = np.zeros((*split.mask.shape, self.output_size))
+        logits[split.mask.numpy()] = log_probs
+        return logits
+
+    def baselines(self) -> dict[str, dict[str, float]]:
+        from sklearn.linear_model import LogisticRegression
+        from threadpoolctl import threadpool_limits
+
+        train, test = self.split("train"), self.split("test")
+        train_x, train_labels = self._flat(train)
+        test_x, _ = self._flat(test)
+        # One BLAS thread: on small shared CPUs a threaded BLAS made this fit ~100x slower.
+        with threadpool_limits(limits=1):
+            model = LogisticRegression(max_iter=5000).fit(train_x, train_labels)
+        log_probs = np.full((len(test), self.output_size), IMPOSSIBLE_LOGIT)
+        # classes absent from the training part keep an impossible logit
+        log_probs[:, model.classes_] = model.predict_log_proba(test_x)
+        counts = np.bincount(train_labels, minlength=self.output_size) + 1.0
+        prior = np.broadcast_to(np.log(counts / counts.sum()), (len(test), self.output_size))
+        return {"logistic": self.score(self._at_last_step(test, log_probs), test),
+                "prior": self.score(self._at_last_step(test, prior), test)}
