@@ -26,8 +26,15 @@ OPTIONS = {
 }
 
 
-def build(name, seed, files):
-    return loopzoo.tasks.create(name, seed=seed, **OPTIONS.get(name, {}), **files.get(name, {}))
+# Tasks with several modes get one case per mode; each case's options come from the fixture.
+MODES = {"csv": ("forecast", "classes")}
+CASES = [(name, mode) for name in loopzoo.tasks.available() for mode in MODES.get(name, ("",))]
+
+
+def build(case, seed, files):
+    name, mode = case
+    return loopzoo.tasks.create(name, seed=seed, **OPTIONS.get(name, {}),
+                                **files.get((name, mode), {}))
 
 
 @pytest.fixture(scope="module")
@@ -42,13 +49,46 @@ def user_files(folder):
     notes = folder / "oven-notes.txt"
     notes.write_text("".join(f"oven {n % 4} at {180 + n % 40} C, tray {n % 9} out at {n % 60:02d}\n"
                              for n in range(80)), encoding="utf-8")
-    return {"text": {"path": str(notes)}}
+    return {("text", ""): {"path": str(notes)},
+            ("csv", "forecast"): {"path": str(write_heat_load(folder)), "target": "load_mw",
+                                  "features": ["outdoor_c"], "time": "hour", "window": 24,
+                                  "horizons": [1, 6]},
+            ("csv", "classes"): {"path": str(write_conveyor_runs(folder)), "label": "outcome",
+                                 "sequence": "run", "time": "second"}}
 
 
-@pytest.fixture(scope="module", params=loopzoo.tasks.available())
+def write_heat_load(folder):
+    """Demo: hourly load of an invented district-heating plant, rows shuffled (time sorts them)."""
+    rng = np.random.default_rng(7)
+    hours = np.arange(400)
+    outdoor = 5 + 6 * np.sin(2 * np.pi * hours / 24) + rng.normal(0, 1, hours.size)
+    load = 40 - 1.5 * outdoor + rng.normal(0, 2, hours.size)
+    lines = ["hour,outdoor_c,load_mw"] + [f"{h},{o:.2f},{v:.2f}" for h, o, v in
+                                          zip(hours, outdoor, load, strict=True)]
+    path = folder / "heat-load.csv"
+    path.write_text("\n".join([lines[0], *rng.permutation(lines[1:])]) + "\n", encoding="utf-8")
+    return path
+
+
+def write_conveyor_runs(folder):
+    """Demo: variable-length sensor runs of an invented conveyor, each labelled ok or jam."""
+    rng = np.random.default_rng(8)
+    lines = ["run,second,current_a,speed_ms,outcome"]
+    for run in range(60):
+        jam = run % 3 == 0
+        for second in range(int(rng.integers(3, 12))):
+            current = 2 + (0.3 * second if jam else 0) + rng.normal(0, 0.2)
+            lines.append(f"r{run},{second},{current:.3f},{rng.uniform(0.8, 1.2):.3f},"
+                         f"{'jam' if jam else 'ok'}")
+    path = folder / "conveyor-runs.csv"
+    path.write_text("\n".join(lines) + "\n", encoding="utf-8")
+    return path
+
+
+@pytest.fixture(scope="module", params=CASES, ids=lambda case: "-".join(filter(None, case)))
 def task_pair(request, files):
-    name = request.param
-    return build(name, 0, files), build(name, 0, files), build(name, 1, files)
+    case = request.param
+    return build(case, 0, files), build(case, 0, files), build(case, 1, files)
 
 
 def test_attributes(task_pair):

@@ -15,6 +15,7 @@ from typing import Any
 
 # Importing a task file registers its tasks; the order here is the order of ``available()``.
 from loopzoo.tasks import (  # noqa: F401
+    csv_file,
     digits,
     fleet_log,
     long_lag,

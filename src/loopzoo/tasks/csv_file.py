@@ -1,0 +1,226 @@
+"""The user's own CSV file: forecasting target columns, or classifying variable-length sequences.
+
+    loopzoo.tasks.create("csv", path="load.csv", target="kw", features=["temp"], time="hour",
+                         window=48, horizons=[1, 24])
+    loopzoo.tasks.create("csv", path="trips.csv", label="outcome", sequence="trip_id",
+                         time="t")
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import os
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from loopzoo.tasks._base import SPLITS, Split, Task, split_generators
+from loopzoo.tasks._catalog import TASKS
+from loopzoo.tasks._csv_table import CsvTable, read_csv_table
+from loopzoo.tasks._options import check_fraction, check_str_list
+from loopzoo.tasks._scaling import Standardizer
+from loopzoo.tasks._sequence_classes import SequenceClassTask, encode_sequences, stratified_parts
+from loopzoo.tasks._series import SeriesData, SeriesOptions, SeriesTask
+
+__all__ = ["CsvClassTask", "CsvForecastTask", "create_csv_task"]
+
+
+def _check_path(path: object) -> None:
+    if path is None:
+        raise ValueError("csv needs path=<a CSV file with a header row>")
+    if not isinstance(path, str | os.PathLike):
+        raise ValueError(f"path must be a file path, got {path!r}")
+
+
+def _check_optional_name(field: str, value: object) -> None:
+    if value is not None and (not isinstance(value, str) or not value):
+        raise ValueError(f"{field} must be a column name, got {value!r}")
+
+
+def _check_disjoint(**groups: tuple[str, ...]) -> None:
+    """No column may play two roles (e.g. both target and feature)."""
+    seen: dict[str, str] = {}
+    for role, names in groups.items():
+        for name in names:
+            if name in seen:
+                raise ValueError(f"column {name!r} is given as both {seen[name]} and {role}")
+            seen[name] = role
+
+
+def _time_order(table: CsvTable, field: str, name: str, rows: np.ndarray) -> np.ndarray:
+    """``rows`` sorted by the time column; repeated times within them are an error."""
+    keys = table.sort_keys(field, name)
+    ordered = sorted(rows, key=lambda row: keys[row])
+    for before, after in zip(ordered, ordered[1:], strict=False):
+        if keys[before] == keys[after]:
+            raise ValueError(f"{table.path}: lines {table.lines[before]} and {table.lines[after]} "
+                             f"have the same {name!r} value {keys[after]!r}; times must be unique")
+    return np.array(ordered, dtype=np.int64)
+
+
+@dataclasses.dataclass(frozen=True)
+class CsvForecastOptions(SeriesOptions):
+    path: str | os.PathLike[str] | None = None  # the CSV file (required)
+    target: str | tuple[str, ...] | None = None  # column(s) to forecast (required)
+    features: tuple[str, ...] = ()  # further input columns, known up to the window's end
+    time: str | None = None  # column to sort rows by (numbers or ISO 8601); None: file order
+
+    def __post_init__(self) -> None:
+        super().__post_init__()
+        _check_path(self.path)
+        if self.target is None:
+            raise ValueError("csv forecasting needs target=<column or list of columns>")
+        object.__setattr__(self, "target", check_str_list("target", self.target))
+        object.__setattr__(self, "features",
+                           check_str_list("features", self.features, allow_empty=True))
+        _check_optional_name("time", self.time)
+        _check_disjoint(target=self.target, features=self.features,
+                        time=(self.time,) if self.time else ())
+
+
+class CsvForecastTask(SeriesTask):
+    """Forecast the ``target`` columns of a CSV file (see ``SeriesTask`` for windows, parts,
+    scaling and baselines). Rows are ordered by ``time`` if given; no cell may be missing."""
+
+    name = "csv"
+    Options = CsvForecastOptions
+
+    def _load(self) -> SeriesData:
+        table = read_csv_table(Path(self.options.path))
+        for field, names in (("target", self.options.target), ("features", self.options.features)):
+            for name in names:
+                table.column(field, name)
+        rows = np.arange(len(table.rows))
+        if self.options.time is not None:
+            rows = _time_order(table, "time", self.options.time, rows)
+        columns = (*self.options.target, *self.options.features)
+        values = np.stack([table.numbers("target" if c in self.options.target else "features", c)
+                           for c in columns], axis=1)[rows]
+        return SeriesData(source=str(table.path), values=values, columns=columns,
+                          targets=tuple(range(len(self.options.target))),
+                          imputed=np.zeros(len(values), dtype=bool),
+                          facts={"ordered_by": self.options.time or "file order"})
+
+
+@dataclasses.dataclass(frozen=True)
+class CsvClassOptions:
+    path: str | os.PathLike[str] | None = None  # the CSV file (required)
+    label: str | None = None  # the class column (required), constant within a sequence
+    sequence: str | None = None  # the sequence id column (required); rows of one id form one
+    features: tuple[str, ...] | None = None  # input columns; None: all the other columns
+    time: str | None = None  # column to order rows within a sequence; None: file order
+    val_fraction: float = 0.2  # share of each class's sequences, drawn with the seed
+    test_fraction: float = 0.2
+
+    def __post_init__(self) -> None:
+        _check_path(self.path)
+        if self.label is None or self.sequence is None:
+            raise ValueError("csv classification needs label=<column> and sequence=<column>")
+        _check_optional_name("label", self.label)
+        _check_optional_name("sequence", self.sequence)
+        _check_optional_name("time", self.time)
+        if self.features is not None:
+            object.__setattr__(self, "features", check_str_list("features", self.features))
+        check_fraction("val_fraction", self.val_fraction)
+        check_fraction("test_fraction", self.test_fraction)
+        if self.val_fraction + self.test_fraction >= 1:
+            raise ValueError(f"val_fraction + test_fraction must be below 1, got "
+                             f"{self.val_fraction} + {self.test_fraction}")
+        _check_disjoint(label=(self.label,), sequence=(self.sequence,),
+                        time=(self.time,) if self.time else (), features=self.features or ())
+
+
+class CsvClassTask(SequenceClassTask):
+    """Classify the variable-length sequences of a CSV file (rows grouped by ``sequence``).
+
+    Each sequence's class is its ``label`` (text or numbers; classes in sorted order). Features
+    are standardised with the training sequences' mean and std. Parts: a stratified draw of
+    whole sequences with the seed. Baselines "logistic" and "prior" (``SequenceClassTask``).
+    """
+
+    name = "csv"
+    Options = CsvClassOptions
+
+    def __init__(self, seed: int = 0, **options: Any) -> None:
+        super().__init__(seed, **options)
+        table = read_csv_table(Path(self.options.path))
+        opts = self.options
+        roles = {opts.label, opts.sequence, opts.time}
+        features = opts.features or tuple(name for name in table.header if name not in roles)
+        if not features:
+            raise ValueError(f"{table.path}: no feature columns left besides label, sequence and "
+                             f"time; columns: {', '.join(map(repr, table.header))}")
+        labels = table.texts("label", opts.label, what="label (NaN or empty labels are refused)")
+        ids = table.texts("sequence", opts.sequence, what="sequence id")
+        values = np.stack([table.numbers("features", name) for name in features], axis=1)
+        groups: dict[str, list[int]] = {}
+        for row, key in enumerate(ids):
+            groups.setdefault(key, []).append(row)
+        self.class_names = self._classes(labels)
+        self._sequences, sequence_labels = [], []
+        for key, rows in groups.items():
+            first = rows[0]
+            for row in rows[1:]:
+                if labels[row] != labels[first]:
+                    raise ValueError(
+                        f"{table.path}: sequence {key!r} has label {labels[first]!r} on line "
+                        f"{table.lines[first]} but {labels[row]!r} on line {table.lines[row]}; "
+                        "a sequence has one label")
+            order = (np.array(rows) if opts.time is None
+                     else _time_order(table, "time", opts.time, np.array(rows)))
+            self._sequences.append(values[order])
+            sequence_labels.append(self.class_names.index(labels[first]))
+        self._labels = np.array(sequence_labels, dtype=np.int64)
+        if len(self.class_names) < 2:
+            raise ValueError(f"{table.path}: column {opts.label!r} has a single class "
+                             f"{self.class_names[0]!r}; classification needs at least 2")
+        self._source, self.features = str(table.path), features
+        self.input_size, self.output_size = len(features), len(self.class_names)
+
+    @staticmethod
+    def _classes(labels: list[str]) -> list[str]:
+        """Distinct labels, numerically sorted if all are numbers, else as text."""
+        distinct = set(labels)
+        try:
+            return sorted(distinct, key=float)
+        except ValueError:
+            return sorted(distinct)
+
+    def _make_splits(self) -> dict[str, Split]:
+        rng = split_generators(self.name, self.seed)["train"]
+        parts = stratified_parts(self._labels, {"val": self.options.val_fraction,
+                                                "test": self.options.test_fraction}, rng)
+        empty = [name for name in SPLITS if parts[name].size == 0]
+        if empty:
+            raise ValueError(f"{self._source}: {len(self._sequences)} sequences are too few: the "
+                             f"{' and '.join(empty)} part would be empty with val_fraction="
+                             f"{self.options.val_fraction} and test_fraction="
+                             f"{self.options.test_fraction}")
+        self.input_scaler = Standardizer.fit(
+            np.concatenate([self._sequences[i] for i in parts["train"]]))
+        return {name: encode_sequences([self.input_scaler.transform(self._sequences[i])
+                                        for i in parts[name]], self._labels[parts[name]],
+                                       np.stack([parts[name], parts[name]], axis=1))
+                for name in SPLITS}
+
+    def _facts(self) -> dict[str, Any]:
+        lengths = [len(s) for s in self._sequences]
+        self.split("train")  # fits the scaler
+        return {"source": self._source, "classes": self.class_names,
+                "features": list(self.features), "sequences": len(self._sequences),
+                "sequence_length": {"min": min(lengths), "max": max(lengths)},
+                "scaling": self.input_scaler.describe()}
+
+
+@TASKS.register("csv")
+def create_csv_task(seed: int = 0, **options: Any) -> Task:
+    """Forecasting with ``target=...``; sequence classification with ``label=...``."""
+    if "label" in options and "target" in options:
+        raise ValueError("csv takes either target=... (forecasting) or label=... "
+                         "(sequence classification), not both")
+    if "label" not in options and "target" not in options:
+        raise ValueError("csv needs target=<column(s)> to forecast, or label=<column> and "
+                         "sequence=<column> to classify sequences")
+    task_type = CsvClassTask if "label" in options else CsvForecastTask
+    return task_type(seed, **options)
