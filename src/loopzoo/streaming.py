@@ -8,6 +8,7 @@ which is where batching pays: one ``step`` call instead of one per stream.
 from __future__ import annotations
 
 import json
+import math
 from collections.abc import Hashable, Mapping, Sequence
 from typing import Any
 
@@ -50,7 +51,11 @@ class StreamRunner:
                     f"{attribute!r}"
                 )
         self.model = model.eval()
+        # The runner checks every sample and owns every state, so it calls the topology's step
+        # on checked arguments (``_step``) and skips re-checking them on each sample.
+        self._advance = getattr(model, "_step", model.step)
         self._initial = tuple(t.detach() for t in model.init_state(1))
+        self._sample_shape = torch.Size([model.input_size])
         self._states: dict[Hashable, tuple[torch.Tensor, ...]] = {}
 
     @property
@@ -77,9 +82,9 @@ class StreamRunner:
     def push(self, stream_id: Hashable, sample: Sample) -> torch.Tensor:
         """Advance one stream by one (input_size,) sample and return its (output_size,) output."""
         state = self._require(stream_id)
-        x_t = self._as_batch([sample], ("sample",))
+        x_t = self._as_row(sample, "sample")
         with torch.inference_mode():
-            y_t, state = self.model.step(x_t, state)
+            y_t, state = self._advance(x_t, state)
         self._states[stream_id] = state
         return y_t[0]
 
@@ -89,10 +94,10 @@ class StreamRunner:
         if not ids:
             return {}
         states = [self._require(stream_id) for stream_id in ids]
-        x_t = self._as_batch([samples[i] for i in ids], [f"samples[{i!r}]" for i in ids])
+        x_t = torch.cat([self._as_row(samples[i], f"samples[{i!r}]") for i in ids])
         with torch.inference_mode():
             batched = tuple(torch.cat(parts) for parts in zip(*states, strict=True))
-            y_t, batched = self.model.step(x_t, batched)
+            y_t, batched = self._advance(x_t, batched)
             per_stream = zip(*(part.split(1) for part in batched), strict=True)
         for stream_id, state in zip(ids, per_stream, strict=True):
             self._states[stream_id] = tuple(state)
@@ -159,23 +164,22 @@ class StreamRunner:
                 f"stream id must be hashable, got {type(stream_id).__name__}"
             ) from None
 
-    def _as_batch(self, samples: list[Sample], names: Sequence[str]) -> torch.Tensor:
-        """Stack (input_size,) samples into a finite float32 (B, input_size) batch, or explain."""
-        rows = []
-        for sample, name in zip(samples, names, strict=True):
-            row = torch.as_tensor(sample, dtype=torch.float32)
-            if row.shape != (self.model.input_size,):
-                raise ValueError(
-                    f"{name} has shape {tuple(row.shape)}; expected ({self.model.input_size},) "
-                    f"for a model with input_size={self.model.input_size}"
-                )
-            rows.append(row)
-        batch = torch.stack(rows) if len(rows) > 1 else rows[0].unsqueeze(0)
-        if not bool(torch.isfinite(batch).all()):
-            bad = [n for n, r in zip(names, rows, strict=True) if not bool(torch.isfinite(r).all())]
-            raise ValueError(f"{', '.join(bad)} contains NaN or infinite values")
-        return batch
-
+    def _as_row(self, sample: Sample, name: str) -> torch.Tensor:
+        """One (input_size,) sample as a finite float32 (1, input_size) tensor, or explain."""
+        row = torch.as_tensor(sample, dtype=torch.float32)
+        if row.shape != self._sample_shape:
+            raise ValueError(
+                f"{name} has shape {tuple(row.shape)}; expected ({self.model.input_size},) "
+                f"for a model with input_size={self.model.input_size}"
+            )
+        if row.requires_grad:
+            row = row.detach()
+        values = row.numpy()
+        # A finite sum proves every value finite and costs far less than an elementwise test;
+        # the exact test runs only when the sum is not finite (NaN, inf, or float32 overflow).
+        if not math.isfinite(values.sum()) and not np.isfinite(values).all():
+            raise ValueError(f"{name} contains NaN or infinite values")
+        return row.unsqueeze(0)
 
 def _read_metadata(data: bytes) -> dict[str, str]:
     """The ``__metadata__`` of a safetensors buffer (its JSON header), without reading tensors."""

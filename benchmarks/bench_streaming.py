@@ -1,0 +1,116 @@
+"""Single-stream step latency: each topology through StreamRunner and through onnxruntime, next
+to torch.nn.RNNCell + Linear of the same sizes measured in the same process.
+
+Repeats are interleaved (every candidate once per round, in turn), each timing a block of
+consecutive steps; a candidate's ratio is the median over rounds of its time divided by the
+reference's time in the same round. Run:
+
+    .venv/bin/python benchmarks/bench_streaming.py [--hidden 64] [--rounds 15] [--steps 400]
+"""
+
+from __future__ import annotations
+
+import argparse
+import os
+import statistics
+import time
+from collections.abc import Callable
+
+os.environ.setdefault("OMP_NUM_THREADS", "1")
+
+import numpy as np  # noqa: E402
+import torch  # noqa: E402
+
+import loopzoo  # noqa: E402
+from loopzoo.export import export_bytes  # noqa: E402
+from loopzoo.streaming import StreamRunner  # noqa: E402
+
+INPUT_SIZE, OUTPUT_SIZE = 8, 4
+
+
+def reference_step(hidden: int) -> Callable[[torch.Tensor], torch.Tensor]:
+    """torch.nn.RNNCell + Linear: the hand-written Elman step a user would otherwise ship."""
+    cell, readout = torch.nn.RNNCell(INPUT_SIZE, hidden), torch.nn.Linear(hidden, OUTPUT_SIZE)
+    state = {"h": torch.zeros(1, hidden)}
+
+    def step(x_t: torch.Tensor) -> torch.Tensor:
+        with torch.inference_mode():
+            state["h"] = cell(x_t.unsqueeze(0), state["h"])
+            return readout(state["h"])[0]
+
+    return step
+
+
+def runner_step(model: torch.nn.Module) -> Callable[[torch.Tensor], torch.Tensor]:
+    runner = StreamRunner(model)
+    runner.start("bench")
+    return lambda x_t: runner.push("bench", x_t)
+
+
+def onnx_step(model: torch.nn.Module) -> Callable[[torch.Tensor], np.ndarray]:
+    import onnxruntime
+
+    options = onnxruntime.SessionOptions()
+    options.intra_op_num_threads = 1
+    options.inter_op_num_threads = 1
+    options.log_severity_level = 3
+    session = onnxruntime.InferenceSession(
+        export_bytes(model, "step", "onnx"), options, providers=["CPUExecutionProvider"]
+    )
+    names = [i.name for i in session.get_inputs()]
+    state = [t.numpy() for t in model.init_state(1)]
+
+    def step(x_t: torch.Tensor) -> np.ndarray:
+        feed = dict(zip(names, [x_t.numpy()[None], *state], strict=True))
+        y_t, *next_state = session.run(None, feed)
+        state[:] = next_state
+        return y_t[0]
+
+    return step
+
+
+def time_block(step: Callable[[torch.Tensor], object], samples: torch.Tensor) -> float:
+    start = time.perf_counter()
+    for x_t in samples:
+        step(x_t)
+    return (time.perf_counter() - start) / len(samples)
+
+
+def main() -> None:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--hidden", type=int, default=64)
+    parser.add_argument("--rounds", type=int, default=15)
+    parser.add_argument("--steps", type=int, default=400)
+    args = parser.parse_args()
+    torch.set_num_threads(1)
+    torch.manual_seed(0)
+    samples = torch.randn(args.steps, INPUT_SIZE)
+    candidates: dict[str, Callable[[torch.Tensor], object]] = {
+        "torch.nn.RNNCell + Linear (reference)": reference_step(args.hidden)
+    }
+    for name in loopzoo.available():
+        model = loopzoo.create(
+            name, input_size=INPUT_SIZE, output_size=OUTPUT_SIZE, hidden_size=args.hidden
+        ).eval()
+        candidates[f"{name} via StreamRunner"] = runner_step(model)
+        candidates[f"{name} via onnxruntime step graph"] = onnx_step(model)
+    for step in candidates.values():  # warm-up: allocator, first-call paths
+        time_block(step, samples[:50])
+    seconds: dict[str, list[float]] = {name: [] for name in candidates}
+    for _ in range(args.rounds):
+        for name, step in candidates.items():
+            seconds[name].append(time_block(step, samples))
+    reference = seconds["torch.nn.RNNCell + Linear (reference)"]
+    print(f"single stream, B=1, input {INPUT_SIZE}, hidden {args.hidden}, output {OUTPUT_SIZE}, "
+          f"1 thread, {args.rounds} interleaved rounds x {args.steps} steps, torch "
+          f"{torch.__version__}")
+    print()
+    print("| path | median step latency (us) | ratio to reference (median over rounds) |")
+    print("| --- | ---: | ---: |")
+    for name, times in seconds.items():
+        ratio = statistics.median(t / r for t, r in zip(times, reference, strict=True))
+        print(f"| {name} | {statistics.median(times) * 1e6:.1f} | {ratio:.2f} |")
+
+
+if __name__ == "__main__":
+    main()
