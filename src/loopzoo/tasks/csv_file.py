@@ -73,7 +73,7 @@ class CsvForecastOptions(SeriesOptions):
             raise ValueError("csv forecasting needs target=<column or list of columns>")
         object.__setattr__(self, "target", check_str_list("target", self.target))
         object.__setattr__(self, "features",
-                           check_str_list("features", self.features, allow_empty=True))
+                           check_str_list("features", self.features or (), allow_empty=True))
         _check_optional_name("time", self.time)
         _check_disjoint(target=self.target, features=self.features,
                         time=(self.time,) if self.time else ())
