@@ -11,6 +11,7 @@ import logging
 import shutil
 import time
 import traceback
+import warnings
 from dataclasses import asdict, dataclass
 from pathlib import Path
 from typing import Any
@@ -27,6 +28,9 @@ from loopzoo.harness.errors import ConfigError, OutDirError
 __all__ = ["Outcome", "run_one", "ensure_baselines", "threads_for_launcher", "sweep_job"]
 
 log = logging.getLogger(__name__)
+# Lightning 2.6 with torch 2.13 warns about a deprecated pytree class on every fit; it is
+# Lightning's internal use, says nothing about the run, and would drown the progress lines.
+warnings.filterwarnings("ignore", message=".*LeafSpec.*", category=FutureWarning)
 
 
 @dataclass(frozen=True)
@@ -119,7 +123,15 @@ def run_one(cfg: DictConfig, *, threads: int | None = None, sweep: bool = False)
 
     out = Path(cfg.out)
     records.claim_out_dir(out, cfg.suite)
+    previous_threads = torch.get_num_threads()
     torch.set_num_threads(threads or cores())
+    try:
+        return _run_locked(cfg, out, sweep)
+    finally:
+        torch.set_num_threads(previous_threads)
+
+
+def _run_locked(cfg: DictConfig, out: Path, sweep: bool) -> Outcome:
     rid = runids.run_id(cfg)
     tick = time.perf_counter()
     with state.file_lock(state.state_dir(out) / "locks" / f"{rid}.lock"):

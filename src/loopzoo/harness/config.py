@@ -27,6 +27,7 @@ __all__ = [
     "CONFIG_MODULE",
     "GROUPS",
     "cores",
+    "output_kind",
     "group_options",
     "parse_overrides",
     "composer",
@@ -48,8 +49,25 @@ def cores() -> int:
         return os.cpu_count() or 1
 
 
-if not OmegaConf.has_resolver("loopzoo.cores"):
-    OmegaConf.register_new_resolver("loopzoo.cores", cores)
+def output_kind(task_name: str) -> str:
+    """``"classes"`` for a classification task, ``"real"`` otherwise (output-feedback's option)."""
+    from loopzoo.tasks import TASKS
+
+    try:
+        kind = getattr(TASKS.get(task_name), "kind", None)
+    except ValueError as error:
+        raise ConfigError(str(error)) from None
+    if kind not in ("regression", "classification"):
+        raise ConfigError(
+            f"task {task_name!r} decides its kind from its options: set "
+            "model.options.output_kind=real or =classes"
+        )
+    return "classes" if kind == "classification" else "real"
+
+
+for _name, _resolver in (("loopzoo.cores", cores), ("loopzoo.output_kind", output_kind)):
+    if not OmegaConf.has_resolver(_name):
+        OmegaConf.register_new_resolver(_name, _resolver)
 
 
 def group_options(group: str) -> list[str]:

@@ -39,7 +39,9 @@ class SweepPlan:
 
 
 def _sweep_lists(base: DictConfig) -> list[str]:
-    params = base.hydra.sweeper.get("params") or {}
+    params = base.hydra.sweeper.get("params")
+    if params is None:
+        return []
     return [f"{key}={value}" for key, value in OmegaConf.to_container(params).items()]
 
 

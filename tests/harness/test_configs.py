@@ -1,0 +1,165 @@
+"""Every shipped config (each group option, each suite, each launcher) composed, shrunk and run.
+
+The shrinking is driven by the task registry: whatever sizes a task's options offer are made tiny,
+so a new task or topology file is exercised here without new test code.
+"""
+
+import dataclasses
+import itertools
+import math
+from pathlib import Path
+
+import pytest
+from omegaconf import OmegaConf
+
+import loopzoo
+from loopzoo.harness import records
+from loopzoo.harness.app import run_one, threads_for_launcher
+from loopzoo.harness.config import compose_job, composer, cores, group_options
+from loopzoo.harness.sweep import plan_sweep
+from loopzoo.tasks import TASKS
+
+FAST = [
+    "trainer.max_steps=4", "protocol.val_every=2", "protocol.patience=1",
+    "protocol.lr_grid=[0.01]", "task.batch_size=8", "task.budget=900",
+]
+TINY_SIZES = {"train_size": 16, "val_size": 8, "test_size": 8, "length": 6, "lines": 60}
+TEXT = "pump 3 pressure nominal\nvalve 7 closed after check\nfan 2 vibration high\n" * 40
+
+
+def shrink(task: str, tmp_path: Path, prefix: str = "task.options") -> list[str]:
+    """Overrides that make ``task`` tiny: its size options set small, a path given a temp file."""
+    with composer():
+        shipped = OmegaConf.to_container(
+            compose_job([f"task={task}", f"task.options.path={tmp_path}"], with_hydra=True)
+            .task.options
+        ) if "path" in _fields(task) else OmegaConf.to_container(
+            compose_job([f"task={task}"], with_hydra=True).task.options)
+    overrides = []
+    for key, value in TINY_SIZES.items():
+        if key in _fields(task):
+            overrides.append(f"{'' if key in shipped else '+'}{prefix}.{key}={value}")
+    if "path" in _fields(task):
+        data = tmp_path / f"{task}-data.txt"
+        data.write_text(TEXT, encoding="utf-8")
+        overrides.append(f"{prefix}.path={data}")
+    return overrides
+
+
+def _fields(task: str) -> set[str]:
+    return {f.name for f in dataclasses.fields(TASKS.get(task).Options)}
+
+
+def run_tiny(overrides: list[str], out: Path) -> dict:
+    with composer():
+        cfg = compose_job([*overrides, f"out={out}"])
+    outcome = run_one(cfg, threads=1)
+    return records.read_record(records.record_path(out, outcome.run_id))
+
+
+def test_every_registered_name_has_a_config_and_every_config_a_registered_name():
+    assert group_options("model") == sorted(loopzoo.available())
+    assert group_options("task") == sorted(loopzoo.tasks.available())
+
+
+@pytest.mark.parametrize("model", group_options("model"))
+def test_every_model_config_trains(model, tmp_path):
+    record = run_tiny([f"model={model}", "task=adding", *FAST, *shrink("adding", tmp_path)],
+                      tmp_path / "out")
+    assert record["status"] == "ok", record["reason"]
+    assert record["model"] == model
+    # The config's options are the ones the topology is built with.
+    assert record["config"]["model"]["name"] == model
+
+
+@pytest.mark.parametrize("task", group_options("task"))
+def test_every_task_config_trains(task, tmp_path):
+    record = run_tiny(["model=hidden-feedback", f"task={task}", *FAST, *shrink(task, tmp_path)],
+                      tmp_path / "out")
+    assert record["status"] == "ok", record["reason"]
+    assert record["task"] == task
+    assert record["primary"]["name"] in record["metrics"]["test"]
+
+
+def test_output_feedback_takes_its_output_kind_from_the_task(tmp_path):
+    with composer():
+        for task in ("adding", "copy"):
+            cfg = compose_job(["model=output-feedback", f"task={task}"])
+            expected = "classes" if TASKS.get(task).kind == "classification" else "real"
+            assert cfg.model.options.output_kind == expected
+    record = run_tiny(["model=output-feedback", "task=copy", *FAST, *shrink("copy", tmp_path)],
+                      tmp_path / "out")
+    assert record["status"] == "ok", record["reason"]
+    assert {"val_free_running", "test_free_running"} <= set(record["metrics"])
+
+
+def test_trainer_optim_and_protocol_options_compose():
+    with composer():
+        for trainer, optim, protocol in itertools.product(
+            group_options("trainer"), group_options("optim"), group_options("protocol")
+        ):
+            cfg = compose_job([f"trainer={trainer}", f"optim={optim}", f"protocol={protocol}"])
+            assert cfg.trainer.accelerator == "cpu"
+            assert cfg.trainer.max_steps > 0 and cfg.optim.lr > 0
+        ddp = compose_job(["trainer=ddp"]).trainer
+        assert (ddp.strategy, ddp.devices, ddp.num_nodes) == ("ddp_spawn", 2, 1)
+
+
+def test_launcher_presets_compose_and_set_threads():
+    with composer():
+        local = compose_job(["hydra/launcher=local"], with_hydra=True).hydra.launcher
+        assert local._target_.endswith("JoblibLauncher")
+        assert local.n_jobs == cores()
+        assert threads_for_launcher(local) == 1  # cores / n_jobs with one job per core
+        slurm = compose_job(["hydra/launcher=slurm"], with_hydra=True).hydra.launcher
+        assert slurm._target_.endswith("SlurmLauncher")
+        assert threads_for_launcher(slurm) == slurm.cpus_per_task
+        local_slurm = compose_job(["hydra/launcher=slurm-local"], with_hydra=True).hydra.launcher
+        assert local_slurm._target_.endswith("LocalLauncher")
+        # Hydra's own folders go under the output directory, never into the working directory.
+        hydra = compose_job(["out=/somewhere/else"], with_hydra=True).hydra
+        assert hydra.run.dir.startswith("/somewhere/else/.hydra-runs/")
+        assert hydra.sweep.dir.startswith("/somewhere/else/.hydra-runs/")
+    assert threads_for_launcher({"n_jobs": 2}) == max(1, cores() // 2)
+    assert threads_for_launcher({"n_jobs": -1}) == 1
+    assert threads_for_launcher(None) == cores()
+
+
+@pytest.mark.parametrize("suite", group_options("suite"))
+def test_every_suite_expands_composes_and_trains(suite, tmp_path):
+    plan = plan_sweep([f"suite={suite}", f"out={tmp_path / 'out'}"])
+    with composer():
+        params = compose_job([f"suite={suite}"], with_hydra=True).hydra.sweeper.params
+    sizes = [len(str(value).split(",")) for value in params.values()]
+    assert len(plan.jobs) == math.prod(sizes)
+    assert len(set(plan.run_ids)) == len(plan.jobs)
+    assert {job.suite for job in plan.jobs} == {suite}
+    # One shrunk job per task of the suite, with the suite's per-task settings applied.
+    first_job = {}
+    for overrides, job in zip(plan.overrides, plan.jobs, strict=True):
+        first_job.setdefault(job.task.name, overrides)
+    for task, overrides in first_job.items():
+        record = run_tiny([*overrides, *FAST, *shrink(task, tmp_path)], tmp_path / "out")
+        assert record["status"] == "ok", record["reason"]
+        assert (record["suite"], record["task"]) == (suite, task)
+
+
+def test_quick_suite_is_the_issue_s_comparison(tmp_path):
+    # Issue 4: all seven topologies on four tasks, three seeds.
+    plan = plan_sweep(["suite=quick", f"out={tmp_path}"])
+    assert {job.model.name for job in plan.jobs} == set(loopzoo.available())
+    assert len({job.task.name for job in plan.jobs}) == 4
+    assert len({job.seed for job in plan.jobs}) == 3
+
+
+def test_suite_per_task_settings_apply_and_the_command_line_wins(tmp_path):
+    with composer():
+        per_task = OmegaConf.to_container(
+            compose_job(["suite=quick"], with_hydra=True).per_task)
+        task, fragment = next(iter(per_task.items()))
+        budget = fragment["task"]["budget"]
+        cfg = compose_job(["suite=quick", f"task={task}"])
+        assert cfg.task.budget == budget
+        assert "per_task" not in cfg
+        cfg = compose_job(["suite=quick", f"task={task}", "task.budget=777"])
+        assert cfg.task.budget == 777
