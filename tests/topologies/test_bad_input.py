@@ -145,7 +145,7 @@ def test_targets_of_the_wrong_shape_or_range() -> None:
         real(x, teacher_forcing=0.5)
     nan_targets = torch.randn(2, 5, 2)
     nan_targets[0, 0, 0] = float("nan")
-    with pytest.raises(ValueError, match="targets contain non-finite values"):
+    with pytest.raises(ValueError, match="targets contains 1 non-finite value"):
         real(x, targets=nan_targets)
     classes = _model("output-feedback", output_kind="classes")
     with pytest.raises(ValueError, match=r"class targets must be integer ids in \[0, 2\), got "

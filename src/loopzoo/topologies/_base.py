@@ -23,6 +23,7 @@ __all__ = [
     "RecurrentTopology",
     "State",
     "batch_first",
+    "check_finite",
     "hold",
     "project_time_major",
     "register",
@@ -103,6 +104,15 @@ def scan(
         state = hold(None if valid is None else valid[t], new, state)
         outputs.append(out)
     return torch.stack(outputs), state
+
+
+def check_finite(name: str, value: Tensor) -> None:
+    """Refuse NaN or inf. A finite sum proves all entries finite; only then count the bad ones."""
+    if bool(torch.isfinite(value.sum())):
+        return
+    bad = int((~torch.isfinite(value)).sum())
+    if bad:
+        raise ValueError(f"{name} contains {bad} non-finite value(s) (NaN or inf); clean the data")
 
 
 def _shape(shape: Sequence[int | str]) -> str:
@@ -188,9 +198,7 @@ class RecurrentTopology(nn.Module):
         ``teacher_forcing`` and ignore both.
         """
         x = self._check_input("x", x, ("B", "T", self.input_size))
-        if not bool(torch.isfinite(x).all()):
-            bad = int((~torch.isfinite(x)).sum())
-            raise ValueError(f"x contains {bad} non-finite value(s) (NaN or inf); clean the data")
+        check_finite("x", x)
         batch, steps = x.shape[0], x.shape[1]
         if steps < 1:
             raise ValueError(f"x must have at least one time step, got shape {tuple(x.shape)}")

@@ -24,7 +24,7 @@ from torch import Tensor, nn
 from loopzoo.topologies._base import (
     RecurrentTopology,
     State,
-    batch_first,
+    check_finite,
     hold,
     project_time_major,
     register,
@@ -118,12 +118,12 @@ class OutputFeedback(RecurrentTopology):
         if shape != (batch, steps, out):
             raise ValueError(f"targets must have shape {accepted}, got shape {shape}")
         self._check_dtype("targets", targets)
-        if not bool(torch.isfinite(targets).all()):
-            raise ValueError("targets contain non-finite values (NaN or inf)")
+        check_finite("targets", targets)
         return targets
 
     def _readout_step(self, u_t: Tensor, fed: Tensor) -> Tensor:
-        return self.readout(self.activation(u_t + fed @ self.weight_oh.t()))
+        """y_t from u_t = U x_t + b (B, H) and the fed-back o_{t-1} (B, O)."""
+        return self.readout(self.activation(torch.addmm(u_t, fed, self.weight_oh.t())))
 
     def _sequence(self, x, state, valid, targets, teacher_forcing) -> tuple[Tensor, State]:
         if teacher_forcing == 1.0:
@@ -146,10 +146,12 @@ class OutputFeedback(RecurrentTopology):
 
     def _teacher_forced(self, x, state, valid, targets) -> tuple[Tensor, State]:
         """All steps at once: o_{t-1} = targets[:, t-1], and the carried state at t = 0."""
+        batch, steps = x.shape[0], x.shape[1]
         previous = torch.cat([state[0].unsqueeze(1), targets[:, :-1]], dim=1)  # (B, T, O)
-        u = project_time_major(x, self.weight_ih, self.bias)  # (T, B, H)
-        pre = u + project_time_major(previous, self.weight_oh, None)
-        y = batch_first(self.readout(self.activation(pre)))
+        inputs = torch.cat([x, previous], dim=-1).view(batch * steps, -1)  # (B*T, I + O)
+        weight = torch.cat([self.weight_ih, self.weight_oh], dim=1)  # (H, I + O)
+        h = self.activation(torch.addmm(self.bias, inputs, weight.t()))  # (B*T, H)
+        y = self.readout(h).view(batch, steps, self.output_size)
         if valid is None:
             return y, (targets[:, -1],)
         lengths = valid.sum(dim=1)
