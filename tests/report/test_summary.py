@@ -161,3 +161,19 @@ def test_task_without_primary_has_no_verdict(tmp_path, demo):
 def test_bad_alpha_is_refused():
     with pytest.raises(ValueError, match="alpha"):
         summarise([], alpha=5)
+
+
+def test_verdict_says_when_the_pick_only_ties_the_baseline(tmp_path, demo):
+    model = [0.170, 0.175, 0.168]
+    base = [0.172, 0.171, 0.176]
+    records = [demo.record(run_id=f"m{s}", seed=s, metrics={"test": {"mse": v}})
+               for s, v in enumerate(model)]
+    records += [demo.record(run_id=f"b{s}", seed=s, kind="baseline", model="memoryless",
+                            metrics={"test": {"mse": v}}) for s, v in enumerate(base)]
+    demo.write_records(tmp_path, records)
+    text = " ".join(task_verdict(summarise(load_runs(tmp_path)[0]).tasks[0], 0.05))
+    # Source for the p-value: scipy.stats.ttest_ind(equal_var=False) on the same numbers.
+    p = stats.ttest_ind(model, base, equal_var=False).pvalue
+    assert p >= 0.05
+    assert "statistically indistinguishable from the best classical baseline, memoryless" in text
+    assert f"p = {p:.2g}" in text and "beats" not in text

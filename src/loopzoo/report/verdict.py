@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 from loopzoo.report import formatting as fmt
+from loopzoo.report.stats import welch_test
 from loopzoo.report.summary import LATENCY_FIELD, Row, TaskSummary
 
 __all__ = ["task_verdict"]
@@ -74,18 +75,21 @@ def _cost_sentence(pick: Row, task: TaskSummary) -> str | None:
     return text + "."
 
 
-def _baseline_sentence(pick: Row, task: TaskSummary) -> str | None:
+def _baseline_sentence(pick: Row, task: TaskSummary, alpha: float) -> str | None:
     baselines = [r for r in task.rows if r.kind == "baseline" and r.interval]
     if not baselines or pick.interval is None:
         return None
-    best = baselines[0]
-    assert best.interval is not None
-    beats = (pick.rank or 0) < (best.rank or 0)
-    relation = "beats" if beats else "does not beat"
-    return (
-        f"It {relation} the best classical baseline, {best.label} "
-        f"({_quality(best, task, seeds=False)})."
-    )
+    best = baselines[0]  # rows come in ranked order
+    quality = f"{best.label} ({_quality(best, task, seeds=False)})"
+    test = welch_test(pick.values, best.values)
+    if test is not None and test.p_value >= alpha:
+        return (
+            f"It is statistically indistinguishable from the best classical baseline, {quality} "
+            f"(Welch p = {fmt.p_value(test.p_value)}): the best topology did not measurably "
+            "beat it."
+        )
+    relation = "beats" if (pick.rank or 0) < (best.rank or 0) else "does not beat"
+    return f"It {relation} the best classical baseline, {quality}."
 
 
 def _exposure_sentence(pick: Row, task: TaskSummary) -> str | None:
@@ -132,7 +136,7 @@ def task_verdict(task: TaskSummary, alpha: float) -> list[str]:
     sentences.extend(_pick_sentence(pick, task, alpha))
     extras = (
         _cost_sentence(pick, task),
-        _baseline_sentence(pick, task),
+        _baseline_sentence(pick, task, alpha),
         _exposure_sentence(pick, task),
         _health_sentence(pick),
     )
