@@ -155,6 +155,10 @@ def test_no_leakage_between_splits(task_pair):
             else:
                 # Chronological: every index of a later split comes after the earlier split's.
                 assert a[:, 1].max() < b[:, 0].min(), (first, second)
+    if task.kind == "regression":
+        # Real-valued inputs never repeat by chance, so a shared input sequence means leakage.
+        rows = {name: {x.numpy().tobytes() for x in task.split(name).x} for name in SPLITS}
+        assert not rows["train"] & rows["test"] and not rows["train"] & rows["val"]
 
 
 def test_score_has_primary_metric_and_baselines_share_keys(task_pair):
@@ -193,6 +197,15 @@ def test_score_rejects_wrong_shapes_and_nan(task_pair):
     bad[test.mask] = float("nan")
     with pytest.raises(ValueError, match="non-finite"):
         task.score(bad, test)
+
+
+def test_impossible_sizes_are_refused():
+    with pytest.raises(ValueError, match="would hold about .* values .*limit"):
+        loopzoo.tasks.create("adding", length=100_000, train_size=100_000)
+    with pytest.raises(ValueError, match="train_size must be >= 1"):
+        loopzoo.tasks.create("copy", train_size=0)
+    with pytest.raises(ValueError, match="length must be an integer"):
+        loopzoo.tasks.create("parity", length=2.5)
 
 
 def test_unknown_names_and_options_are_rejected():

@@ -16,6 +16,7 @@ __all__ = [
     "check_fraction",
     "check_int",
     "check_int_list",
+    "check_volume",
     "check_positive_float",
     "check_seed",
     "check_str_list",
@@ -31,6 +32,18 @@ def build_options(options_type: type[OptionsT], task: str, given: dict[str, Any]
         if key not in accepted:
             raise unknown_choice(f"{task} option", key, accepted)
     return options_type(**given)
+
+
+# Values (float32) a task may hold across its three splits: 2 GB, a tenth of this kind of machine.
+MAX_VALUES = 500_000_000
+
+
+def check_volume(task: str, values: int, sizes: str) -> None:
+    """Refuse sizes whose tensors would not fit: ``values`` counted over x, y and the mask."""
+    if values > MAX_VALUES:
+        raise ValueError(f"{task} with {sizes} would hold about {values:.2e} values "
+                         f"({values * 4 / 1e9:.1f} GB); the limit is {MAX_VALUES:.0e}: use fewer "
+                         "or shorter sequences")
 
 
 def check_seed(seed: object) -> int:
@@ -120,3 +133,9 @@ class SplitSizes:
     def sizes(self) -> dict[str, int]:
         """Sequences per split name."""
         return {"train": self.train_size, "val": self.val_size, "test": self.test_size}
+
+    def check_volume(self, task: str, steps: int, channels: int) -> None:
+        """Refuse sizes whose (N, steps, channels) tensors over all splits would not fit."""
+        sequences = self.train_size + self.val_size + self.test_size
+        check_volume(task, sequences * steps * channels,
+                     f"{sequences} sequences of {steps} steps")

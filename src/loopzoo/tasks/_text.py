@@ -8,7 +8,7 @@ from typing import Any
 import numpy as np
 
 from loopzoo.tasks._base import SPLITS, part_bounds, shortest_record
-from loopzoo.tasks._options import check_fraction, check_int
+from loopzoo.tasks._options import check_fraction, check_int, check_volume
 from loopzoo.tasks._symbols import NextSymbolTask
 
 __all__ = ["CharacterTask", "TextOptions"]
@@ -55,6 +55,9 @@ class CharacterTask(NextSymbolTask):
                              f"needed with val_fraction={self.options.val_fraction} and "
                              f"test_fraction={self.options.test_fraction}")
         self.alphabet = tuple(sorted(set(self.text)))
+        # one-hot inputs: a value per character and class
+        check_volume(self.name, total * (len(self.alphabet) + 2),
+                     f"{total} characters of {len(self.alphabet)} kinds")
 
     def _symbol_strings(self) -> dict[str, tuple[list[np.ndarray], np.ndarray]]:
         index = {char: i for i, char in enumerate(self.alphabet)}

@@ -65,11 +65,11 @@ def generate_fleet_log(lines: int, rng: np.random.Generator) -> str:
 
 @dataclasses.dataclass(frozen=True)
 class FleetLogOptions(TextOptions):
-    lines: int = 1500  # log lines generated (about 75 characters each)
+    lines: int = 1500  # log lines generated (about 50 characters each); at most 100,000
 
     def __post_init__(self) -> None:
         super().__post_init__()
-        check_int("lines", self.lines, minimum=1, maximum=10_000_000)
+        check_int("lines", self.lines, minimum=1, maximum=100_000)
 
 
 @TASKS.register("fleet-log")

@@ -35,6 +35,7 @@ class AddingOptions(SplitSizes):
     def __post_init__(self) -> None:
         super().__post_init__()
         check_int("length", self.length, minimum=2, maximum=100_000)
+        self.check_volume("adding", self.length, channels=4)  # x 2, y 1, mask 1
 
 
 @TASKS.register("adding")
@@ -100,6 +101,7 @@ class CopyOptions(SplitSizes):
     def __post_init__(self) -> None:
         super().__post_init__()
         check_int("length", self.length, minimum=1, maximum=100_000)
+        self.check_volume("copy", self.length + 20, channels=12)  # x 10, y 1, mask 1
 
 
 @TASKS.register("copy")

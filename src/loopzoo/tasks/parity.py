@@ -27,6 +27,7 @@ class ParityOptions(SplitSizes):
     def __post_init__(self) -> None:
         super().__post_init__()
         check_int("length", self.length, minimum=1, maximum=100_000)
+        self.check_volume("parity", self.length, channels=3)  # x 1, y 1, mask 1
 
 
 @TASKS.register("parity")

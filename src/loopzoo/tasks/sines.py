@@ -23,7 +23,7 @@ __all__ = ["SinesTask"]
 class SinesOptions(SplitSizes):
     length: int = 100  # T observed steps per sequence
     horizons: tuple[int, ...] = (1, 5, 10)  # steps ahead, one output channel each
-    periods: tuple[int, ...] = (16, 40)  # component periods in steps
+    periods: tuple[float, ...] = (16.0, 40.0)  # component periods in steps
     amplitudes: tuple[float, ...] = (1.0, 0.5)  # one per period
     noise: float = 0.1  # standard deviation of the Gaussian observation noise
 
@@ -45,6 +45,8 @@ class SinesOptions(SplitSizes):
             raise ValueError(f"amplitudes needs one value per period ({len(self.periods)}), "
                              f"got {len(self.amplitudes)}")
         check_positive_float("noise", self.noise, allow_zero=True)
+        # x 1, y one per horizon, the mask, and the noise-free signal kept for the optimum
+        self.check_volume("sines", self.length + max(self.horizons), len(self.horizons) + 3)
 
 
 @TASKS.register("sines")
