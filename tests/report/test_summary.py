@@ -176,4 +176,4 @@ def test_verdict_says_when_the_pick_only_ties_the_baseline(tmp_path, demo):
     p = stats.ttest_ind(model, base, equal_var=False).pvalue
     assert p >= 0.05
     assert "statistically indistinguishable from the best classical baseline, memoryless" in text
-    assert f"p = {p:.2g}" in text and "beats" not in text
+    assert f"Welch p = {p:.2g}" in text and "beats" not in text

@@ -7,7 +7,7 @@ import math
 import statistics
 from collections import Counter, defaultdict
 from collections.abc import Iterable, Mapping, Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import Any
 
 from loopzoo.report.loading import Run, Skipped, finite_number
@@ -216,23 +216,23 @@ def _cost(ok_runs: Sequence[Run], label: str, gaps: list[str]) -> tuple[dict, in
 
 
 def _reach(ok_runs: Sequence[Run], label: str, gaps: list[str]) -> dict[str, float | None]:
-    reach: dict[str, float | None] = {}
+    lags: dict[str, list[float]] = {f"{p}_{f}": [] for p, _ in REACH_PHASES for f in REACH_FACTORS}
     unusable = 0
-    for phase, _ in REACH_PHASES:
-        for factor in REACH_FACTORS:
-            lags = []
-            for run in ok_runs:
-                series = run.gradient_reach or {}
-                lag = reach_lag(series.get("lags") or [], series.get(phase) or [], factor)
-                if lag is None:
-                    unusable += 1
-                else:
-                    lags.append(lag)
-            reach[f"{phase}_{factor}"] = _median(lags)
+    for run in ok_runs:
+        series = run.gradient_reach or {}
+        run_lags = series.get("lags") or []
+        found = {
+            f"{phase}_{factor}": reach_lag(run_lags, series.get(phase) or [], factor)
+            for phase, _ in REACH_PHASES
+            for factor in REACH_FACTORS
+        }
+        unusable += any(lag is None for lag in found.values())
+        for key, lag in found.items():
+            if lag is not None:
+                lags[key].append(lag)
     if unusable:
-        runs = unusable // (len(REACH_PHASES) * len(REACH_FACTORS)) or 1
-        gaps.append(f"{label}: gradient reach missing or unusable in {runs} ok run(s)")
-    return reach
+        gaps.append(f"{label}: gradient reach missing or unusable in {unusable} ok run(s)")
+    return {key: _median(values) for key, values in lags.items()}
 
 
 def _feedback_setting(feedback: Mapping[str, Any]) -> str:
@@ -409,7 +409,7 @@ def _summarise_task(
     latency_front = _fronts(rows, goal, "latency")
     params_front = _fronts(rows, goal, "params")
     finished = [
-        _replace(
+        replace(
             row,
             rank=ranks.get(row.key),
             versus_best=_compare(row, best, alpha),
@@ -421,12 +421,6 @@ def _summarise_task(
     ]
     finished.sort(key=lambda r: (order.get(r.key, len(order)), r.key))
     return TaskSummary(label, metric, goal, tuple(finished), tuple(gaps))
-
-
-def _replace(row: Row, **changes: object) -> Row:
-    fields = {name: getattr(row, name) for name in row.__dataclass_fields__}
-    fields.update(changes)
-    return Row(**fields)
 
 
 def _overall(tasks: Sequence[TaskSummary]) -> tuple[OverallRow, ...]:

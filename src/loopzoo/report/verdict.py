@@ -84,9 +84,9 @@ def _baseline_sentence(pick: Row, task: TaskSummary, alpha: float) -> str | None
     test = welch_test(pick.values, best.values)
     if test is not None and test.p_value >= alpha:
         return (
-            f"It is statistically indistinguishable from the best classical baseline, {quality} "
-            f"(Welch p = {fmt.p_value(test.p_value)}): the best topology did not measurably "
-            "beat it."
+            f"It is statistically indistinguishable from the best classical baseline, "
+            f"{best.label} ({_quality(best, task, seeds=False)}; Welch p = "
+            f"{fmt.p_value(test.p_value)}): the best topology did not measurably beat it."
         )
     relation = "beats" if (pick.rank or 0) < (best.rank or 0) else "does not beat"
     return f"It {relation} the best classical baseline, {quality}."
