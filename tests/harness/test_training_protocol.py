@@ -2,10 +2,12 @@
 
 from pathlib import Path
 
+import lightning as L
 import pytest
 from hydra import compose, initialize_config_module
 
 import loopzoo
+from loopzoo.diagnostics import gradient_reach
 from loopzoo.harness import evaluation, module
 from loopzoo.harness.training import baseline_records, train_and_evaluate
 
@@ -47,6 +49,15 @@ def test_a_run_returns_every_body_field(tmp_path: Path):
     assert body["curves"]["step"] == [10, 20, 30, 40][: len(body["curves"]["step"])]
     assert len(body["curves"]["val"]) == len(body["curves"]["train_loss"])
     assert body["started"] <= body["finished"]
+    reach = body["gradient_reach"]
+    assert reach["lags"] == list(range(12))
+    assert reach["init"][0] == reach["final"][0] == 1.0
+    # The initial reach is that of the seeded, untrained model on the first validation inputs.
+    L.seed_everything(3, verbose=False)
+    untrained = loopzoo.create("gru", input_size=2, output_size=1, hidden_size=width)
+    val = loopzoo.tasks.create("adding", seed=3, length=12, train_size=256, val_size=64,
+                               test_size=64).split("val")
+    assert reach["init_raw"] == pytest.approx(gradient_reach(untrained, val.x[:32], max_lag=11))
 
 
 def test_the_lr_grid_is_probed_and_the_best_probe_continued(tmp_path: Path):

@@ -5,9 +5,9 @@ from __future__ import annotations
 from typing import Any
 
 import torch
-from torch.utils.data import DataLoader, Dataset
+from torch.utils.data import DataLoader, Dataset, Sampler
 
-__all__ = ["Batch", "SplitDataset", "training_loader"]
+__all__ = ["Batch", "SeededShuffle", "SplitDataset", "training_loader"]
 
 Batch = tuple[torch.Tensor, torch.Tensor, torch.Tensor]
 
@@ -35,6 +35,27 @@ class SplitDataset(Dataset):
         return self.x[rows], self.y[rows], self.mask[rows]
 
 
+class SeededShuffle(Sampler[int]):
+    """A new permutation of ``range(size)`` per pass, the pass-th one drawn from ``seed``.
+
+    Holds only integers, so it pickles into ddp_spawn workers (a ``torch.Generator`` does not
+    pickle through torch's shared-memory reducer on this stack).
+    """
+
+    def __init__(self, size: int, seed: int) -> None:
+        self.size = size
+        self.seed = seed
+        self.passes = 0
+
+    def __len__(self) -> int:
+        return self.size
+
+    def __iter__(self):
+        generator = torch.Generator().manual_seed(self.seed * 1_000_003 + self.passes)
+        self.passes += 1
+        return iter(torch.randperm(self.size, generator=generator).tolist())
+
+
 def _keep_batch(batch: Batch) -> Batch:
     # The dataset already returns a stacked batch; a module-level function pickles for ddp_spawn.
     return batch
@@ -42,13 +63,11 @@ def _keep_batch(batch: Batch) -> Batch:
 
 def training_loader(split: Any, batch_size: int, seed: int) -> DataLoader:
     """Shuffled batches of ``split`` in an order fixed by ``seed`` (partial last batch dropped)."""
-    generator = torch.Generator().manual_seed(seed)
     return DataLoader(
         SplitDataset(split),
         batch_size=batch_size,
-        shuffle=True,
+        sampler=SeededShuffle(len(split.x), seed),
         drop_last=len(split.x) > batch_size,
-        generator=generator,
         collate_fn=_keep_batch,
         num_workers=0,
     )

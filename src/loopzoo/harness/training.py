@@ -28,6 +28,7 @@ import torch
 from omegaconf import DictConfig
 
 import loopzoo
+from loopzoo.diagnostics import gradient_reach
 from loopzoo.harness.costs import PeakMemory, step_latency_ms
 from loopzoo.harness.data import training_loader
 from loopzoo.harness.errors import ConfigError
@@ -117,13 +118,9 @@ def _check_protocol(settings: RunSettings, train_rows: int) -> None:
         )
 
 
-def _gradient_reach(model: torch.nn.Module, x: torch.Tensor) -> dict[str, list[float]] | None:
-    try:
-        from loopzoo.diagnostics import gradient_reach
-    except ImportError:
-        return None
-    reach = gradient_reach(model, x, max_lag=min(x.shape[1] - 1, _REACH_MAX_LAG))
-    return dict(reach) if isinstance(reach, dict) else {"norms": [float(v) for v in reach]}
+def _gradient_reach(model: torch.nn.Module, x: torch.Tensor) -> list[float]:
+    """Raw norms of dL/d state for lags 0..min(T - 1, _REACH_MAX_LAG)."""
+    return gradient_reach(model, x, max_lag=min(x.shape[1] - 1, _REACH_MAX_LAG))
 
 
 class _Run:
@@ -169,6 +166,7 @@ class _Run:
                      handoff=self.run_dir / ".fit-handoff.pt")
         self.fit_seconds += fit_quietly(module, loader, self.settings.trainer,
                                         max_steps=end_step - before, run_dir=self.run_dir)
+        module.take_handoff()
         self.total_steps += module.fit_state.step - before
         self.val_seconds += module.fit_state.val_seconds - val_before
 
@@ -289,6 +287,9 @@ def _train(run: _Run, body: dict[str, Any]) -> None:
     if state.diverged:
         body.update(status="diverged", reason=state.reason, diverged_at_step=state.diverged_at)
         return
+    if state.best_weights is None:
+        body.update(status="failed", reason="training ended before its first validation")
+        return
     model = module.model
     model.load_state_dict(state.best_weights)
     body["lr"]["best_step"] = state.best_step
@@ -306,19 +307,17 @@ def _train(run: _Run, body: dict[str, Any]) -> None:
         batched_step_latency_ms=step_latency_ms(model, run.val.x[:batched]),
         batched_batch_size=batched,
     )
-    reach_final = _gradient_reach(model, reach_x)
-    if reach_init is not None and reach_final is not None:
-        body["gradient_reach"] = _reach_record(reach_init, reach_final)
+    body["gradient_reach"] = _reach_record(reach_init, _gradient_reach(model, reach_x))
 
 
-def _reach_record(init: dict[str, Any], final: dict[str, Any]) -> dict[str, Any]:
+def _reach_record(init: list[float], final: list[float]) -> dict[str, Any]:
+    """Lag-0-normalised reach at initialisation and after training, with the raw norms."""
+
     def normalised(norms: list[float]) -> list[float]:
-        first = norms[0] if norms and norms[0] else 1.0
-        return [n / first for n in norms]
+        return [n / norms[0] for n in norms] if norms[0] > 0.0 else list(norms)
 
-    init_raw, final_raw = list(init["norms"]), list(final["norms"])
-    return {"lags": list(range(len(init_raw))), "init": normalised(init_raw),
-            "final": normalised(final_raw), "init_raw": init_raw, "final_raw": final_raw}
+    return {"lags": list(range(len(init))), "init": normalised(init), "final": normalised(final),
+            "init_raw": init, "final_raw": final}
 
 
 def baseline_records(cfg: DictConfig) -> list[dict[str, Any]]:

@@ -1,0 +1,54 @@
+"""One run across two CPU processes (Lightning ddp_spawn, gloo), end to end, in a subprocess:
+pytest itself must not host the process group (see STACK-NOTES.md on the ddp pitfalls)."""
+
+import json
+import subprocess
+import sys
+import textwrap
+from pathlib import Path
+
+import pytest
+
+SCRIPT = textwrap.dedent(
+    """
+    import json, sys
+    from pathlib import Path
+    from hydra import compose, initialize_config_module
+    from loopzoo.harness.training import train_and_evaluate
+
+    if __name__ == "__main__":
+        overrides = [
+            "trainer=ddp", "task.options.length=12", "+task.options.train_size=256",
+            "+task.options.val_size=32", "+task.options.test_size=32", "task.batch_size=32",
+            "task.budget=400", "trainer.max_steps=40", "protocol.val_every=10",
+            "protocol.lr_grid=null", "trainer.enable_progress_bar=false",
+        ]
+        with initialize_config_module(config_module="loopzoo.conf", version_base="1.3"):
+            cfg = compose(config_name="config", overrides=overrides)
+        body = train_and_evaluate(cfg, Path(sys.argv[1]))
+        print("BODY " + json.dumps(body))
+    """
+)
+
+
+@pytest.mark.slow
+def test_a_small_run_trains_on_two_processes_and_exits_cleanly(tmp_path: Path):
+    script = tmp_path / "ddp_run.py"
+    script.write_text(SCRIPT)
+    done = subprocess.run(
+        [sys.executable, str(script), str(tmp_path / "run")],
+        capture_output=True, text=True, timeout=600,
+    )
+    # Exit code 134 would be the gloo abort at exit when the process group is left alive.
+    assert done.returncode == 0, done.stderr[-3000:]
+    line = next(x for x in done.stdout.splitlines() if x.startswith("BODY "))
+    body = json.loads(line[len("BODY "):])
+    assert body["status"] == "ok", body["reason"]
+    assert "All distributed processes registered. Starting with 2 processes" in (
+        done.stdout + done.stderr
+    )
+    # The fit state of rank 0 came back to the launching process.
+    assert body["cost"]["steps"] == 40
+    assert body["curves"]["step"] == [10, 20, 30, 40]
+    assert body["metrics"]["test"]["mse"] > 0.0
+    assert not (tmp_path / "run" / ".fit-handoff.pt").exists()
