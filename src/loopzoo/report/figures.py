@@ -6,7 +6,6 @@ Rows are told apart by marker and line style as well as colour, so pages stay le
 from __future__ import annotations
 
 import io
-import math
 import statistics
 from collections import defaultdict
 from collections.abc import Iterator, Sequence
@@ -19,6 +18,7 @@ from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure as MplFigure
 
 from loopzoo.report.document import Figure
+from loopzoo.report.loading import finite_number
 from loopzoo.report.reach import relative_norms
 from loopzoo.report.summary import LATENCY_FIELD, Row, Summary, TaskSummary
 
@@ -88,7 +88,7 @@ def _finite_pairs(xs: object, ys: object) -> list[tuple[float, float]]:
         return []
     pairs = []
     for x, y in zip(xs, ys, strict=False):
-        if isinstance(x, (int, float)) and isinstance(y, (int, float)) and math.isfinite(y):
+        if finite_number(x) is not None and finite_number(y) is not None:
             pairs.append((float(x), float(y)))
     return pairs
 
@@ -206,7 +206,7 @@ def _median_norms(row: Row, phase: str) -> list[tuple[float, float]]:
     by_lag: dict[float, list[float]] = defaultdict(list)
     for run in _ok(row):
         reach = run.gradient_reach or {}
-        relative = relative_norms(reach.get(phase) or [])
+        relative = relative_norms(reach.get(phase))
         if relative is None:
             continue
         for lag, value in _finite_pairs(reach.get("lags"), relative):

@@ -220,9 +220,8 @@ def _reach(ok_runs: Sequence[Run], label: str, gaps: list[str]) -> dict[str, flo
     unusable = 0
     for run in ok_runs:
         series = run.gradient_reach or {}
-        run_lags = series.get("lags") or []
         found = {
-            f"{phase}_{factor}": reach_lag(run_lags, series.get(phase) or [], factor)
+            f"{phase}_{factor}": reach_lag(series.get("lags"), series.get(phase), factor)
             for phase, _ in REACH_PHASES
             for factor in REACH_FACTORS
         }
