@@ -67,7 +67,7 @@ class CharacterTask(NextSymbolTask):
         for name in SPLITS:
             start, end = self._bounds[name]
             # chunk k covers characters [first, last] inclusive; a last chunk of 1 is dropped
-            firsts = [first for first in range(start, end - 1, step)]
+            firsts = list(range(start, end - 1, step))
             lasts = [min(first + step, end - 1) for first in firsts]
             strings[name] = ([ids[a : b + 1] for a, b in zip(firsts, lasts, strict=True)],
                              np.array([firsts, lasts], dtype=np.int64).T)

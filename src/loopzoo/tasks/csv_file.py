@@ -81,7 +81,11 @@ class CsvForecastOptions(SeriesOptions):
 
 class CsvForecastTask(SeriesTask):
     """Forecast the ``target`` columns of a CSV file (see ``SeriesTask`` for windows, parts,
-    scaling and baselines). Rows are ordered by ``time`` if given; no cell may be missing."""
+    scaling and baselines). Rows are ordered by ``time`` if given; no cell may be missing.
+
+    Example:
+        >>> loopzoo.tasks.create("csv", path="load.csv", target="kw", time="hour", window=48)
+    """
 
     name = "csv"
     Options = CsvForecastOptions
@@ -137,6 +141,9 @@ class CsvClassTask(SequenceClassTask):
     Each sequence's class is its ``label`` (text or numbers; classes in sorted order). Features
     are standardised with the training sequences' mean and std. Parts: a stratified draw of
     whole sequences with the seed. Baselines "logistic" and "prior" (``SequenceClassTask``).
+
+    Example:
+        >>> loopzoo.tasks.create("csv", path="trips.csv", label="outcome", sequence="trip_id")
     """
 
     name = "csv"

@@ -38,6 +38,9 @@ class DigitsTask(SequenceClassTask):
     Pixels are divided by 16 (a fixed range, so nothing is fitted). The parts are a stratified
     draw with the seed. Shapes: x (N, 8, 8) or (N, 64, 1), y (N, T) with the class at every
     step, only the last step scored. Baselines "logistic" and "prior".
+
+    Example:
+        >>> task = loopzoo.tasks.create("digits", read="pixels", seed=1)
     """
 
     name = "digits"

@@ -23,6 +23,9 @@ class SunspotsTask(SeriesTask):
 
     Parts by time: the first 70 % of the years train, then 15 % val, then 15 % test. No fixed
     season by default (the solar cycle varies in length); set ``season`` for seasonal-naive.
+
+    Example:
+        >>> task = loopzoo.tasks.create("sunspots", window=30, horizons=[1, 2])
     """
 
     name = "sunspots"
@@ -53,6 +56,9 @@ class Co2Task(SeriesTask):
     weeks so that windows stay regular; filled weeks may appear as inputs but a sample whose
     forecast week is filled is left out, so no filled value is ever scored. ``describe()``
     reports how many weeks were filled and how many samples were left out.
+
+    Example:
+        >>> loopzoo.tasks.create("co2").describe()["missing_weeks_filled"]   # 59
     """
 
     name = "co2"
@@ -91,7 +97,13 @@ class ElNinoOptions(SeriesOptions):
 
 @TASKS.register("elnino")
 class ElNinoTask(SeriesTask):
-    """Monthly sea surface temperature (deg C), 1950-2010 (statsmodels ``elnino``, 732 months)."""
+    """Monthly sea surface temperature (deg C), 1950-2010 (statsmodels ``elnino``, 732 months).
+
+    Parts by time as for sunspots; seasonal-naive uses the same month a year earlier.
+
+    Example:
+        >>> task = loopzoo.tasks.create("elnino", window=36, horizons=[1, 6])
+    """
 
     name = "elnino"
     Options = ElNinoOptions

@@ -39,6 +39,9 @@ class ParityTask(ClassificationTask):
     Baseline "memoryless": the best guess from the current bit alone, exact at t = 0
     (y_0 = b_0) and a coin flip afterwards (y_t is independent of b_t for t > 0), so its
     cross-entropy is (T - 1) ln 2 / T.
+
+    Example:
+        >>> task = loopzoo.tasks.create("parity", length=40, seed=2)
     """
 
     name = "parity"
