@@ -21,6 +21,67 @@ from loopzoo.topologies._base import project_time_major
 __all__ = ["AdditiveRecurrence", "additive_scan"]
 
 
+# torch's CPU sigmoid is several times faster than its tanh (measured here: about 3.5 vs 22 us
+# for a 32 x 128 block), so the loops compute tanh(a) = 2 sigmoid(2a) - 1.
+
+
+def _plain_loop(u: Tensor, h0: Tensor, weight_hh: Tensor, hs: Tensor, relu: bool) -> None:
+    """h_t = f(u_t + W h_{t-1}) written into hs (T, B, H); two operations per step."""
+    if relu:
+        h, w_t = h0, weight_hh.t()
+        # Per-step views made once: indexing inside the loop costs measurable time at small B.
+        for u_t, h_out in zip(u.unbind(0), hs.unbind(0), strict=True):
+            torch.addmm(u_t, h, w_t, out=h_out).relu_()
+            h = h_out
+        return
+    # In sigmoid space: with s_t = sigmoid(2 a_t) and h_t = 2 s_t - 1,
+    # 2 a_t = 2 u_t + 2 W (2 s_{t-1} - 1) = (2 u_t - 2 W 1) + 4 W s_{t-1}.
+    u_s = torch.sub(u, weight_hh.sum(dim=1)).mul_(2.0)
+    w_s = weight_hh.t() * 4.0
+    s = (h0 + 1.0) * 0.5
+    for u_t, s_out in zip(u_s.unbind(0), hs.unbind(0), strict=True):
+        torch.addmm(u_t, s, w_s, out=s_out).sigmoid_()
+        s = s_out
+    hs.mul_(2.0).sub_(1.0)
+
+
+def _general_loop(
+    u: Tensor,
+    h0: Tensor,
+    weight_hh: Tensor,
+    hs: Tensor,
+    zs: Tensor,
+    valid: Tensor | None,
+    relu: bool,
+    carry: bool,
+    scale: float,
+) -> None:
+    """h_t = c h_{t-1} + s f(a_t), held past lengths, into hs; f(a_t) into zs."""
+    if relu:
+        pre, w_t, multiplier, offset = u, weight_hh.t(), scale, 0.0
+    else:  # zs holds sigmoid(2 a) in the loop; s tanh(a) = 2 s sigmoid(2 a) - s
+        pre, w_t, multiplier, offset = u * 2.0, weight_hh.t() * 2.0, 2.0 * scale, -scale
+    h, scratch = h0, torch.empty_like(h0)
+    for t, (u_t, z, h_out) in enumerate(zip(*(v.unbind(0) for v in (pre, zs, hs)), strict=True)):
+        torch.addmm(u_t, h, w_t, out=z)
+        if relu:
+            z.relu_()
+        else:
+            z.sigmoid_()
+        new = h_out if valid is None else scratch
+        if carry:
+            torch.add(h, z, alpha=multiplier, out=new)
+        else:
+            torch.mul(z, multiplier, out=new)
+        if offset:
+            new.add_(offset)
+        if valid is not None:
+            torch.where(valid[t], new, h, out=h_out)
+        h = h_out
+    if not relu:
+        zs.mul_(2.0).sub_(1.0)  # sigmoid(2a) -> tanh(a), which the backward pass reads
+
+
 class _AdditiveScan(torch.autograd.Function):
     """u (T, B, H), h0 (B, H), W (H, H), valid (T, B, 1) or None -> h (T, B, H)."""
 
@@ -35,27 +96,13 @@ class _AdditiveScan(torch.autograd.Function):
         carry: bool,
         scale: float,
     ) -> Tensor:
-        w_t = weight_hh.t()
         hs = torch.empty_like(u)
-        # Without carry or masking h_t == f(a_t), so one buffer serves both.
-        plain = not carry and valid is None and scale == 1.0
-        zs = hs if plain else torch.empty_like(u)
-        h = h0
-        # Per-step views made once: indexing inside the loop costs measurable time at small B.
-        for t, (u_t, z, h_out) in enumerate(zip(*(v.unbind(0) for v in (u, zs, hs)), strict=True)):
-            torch.addmm(u_t, h, w_t, out=z)
-            if relu:
-                z.relu_()
-            else:
-                z.tanh_()
-            if not plain:
-                new = z * scale if scale != 1.0 else z
-                if carry:
-                    new = new + h
-                if valid is not None:
-                    new = torch.where(valid[t], new, h)
-                h_out.copy_(new)
-            h = h_out
+        if not carry and valid is None and scale == 1.0:
+            zs = hs  # h_t == f(a_t): one buffer serves both
+            _plain_loop(u, h0, weight_hh, hs, relu)
+        else:
+            zs = torch.empty_like(u)
+            _general_loop(u, h0, weight_hh, hs, zs, valid, relu, carry, scale)
         ctx.save_for_backward(h0, weight_hh, hs, zs, valid)
         ctx.relu, ctx.carry, ctx.scale = relu, carry, scale
         return hs

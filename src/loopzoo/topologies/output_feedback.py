@@ -21,6 +21,7 @@ from typing import Any
 import torch
 from torch import Tensor, nn
 
+from loopzoo.topologies._activations import batched_tanh
 from loopzoo.topologies._base import (
     RecurrentTopology,
     State,
@@ -150,7 +151,8 @@ class OutputFeedback(RecurrentTopology):
         previous = torch.cat([state[0].unsqueeze(1), targets[:, :-1]], dim=1)  # (B, T, O)
         inputs = torch.cat([x, previous], dim=-1).view(batch * steps, -1)  # (B*T, I + O)
         weight = torch.cat([self.weight_ih, self.weight_oh], dim=1)  # (H, I + O)
-        h = self.activation(torch.addmm(self.bias, inputs, weight.t()))  # (B*T, H)
+        pre = torch.addmm(self.bias, inputs, weight.t())  # (B*T, H)
+        h = torch.relu(pre) if self.options["nonlinearity"] == "relu" else batched_tanh(pre)
         y = self.readout(h).view(batch, steps, self.output_size)
         if valid is None:
             return y, (targets[:, -1],)
