@@ -4,6 +4,7 @@ self-contained HTML, and the ``loopzoo report DIR`` entry point's output and exi
 import base64
 import csv
 import io
+import re
 import shutil
 from html.parser import HTMLParser
 
@@ -71,6 +72,8 @@ def test_html_embeds_every_picture_as_png(built_demo):
         assert head == "data:image/png;base64"
         assert base64.b64decode(data).startswith(PNG_SIGNATURE)
     assert "<script" not in html and "http" not in html.replace("http-equiv", "")
+    links = re.findall(r'href="#([^"]+)"', html)
+    assert len(links) == 6 and all(f'id="{anchor}"' in html for anchor in links)
 
 
 def test_markdown_names_statistics_alpha_and_skips(built_demo):

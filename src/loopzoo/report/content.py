@@ -6,7 +6,15 @@ import re
 from collections.abc import Callable
 
 from loopzoo.report import formatting as fmt
-from loopzoo.report.document import Block, Bullets, Figure, Heading, Paragraph, Table
+from loopzoo.report.document import (
+    Block,
+    Bullets,
+    Contents,
+    Figure,
+    Heading,
+    Paragraph,
+    Table,
+)
 from loopzoo.report.figures import overall_figure, styles_for, task_figures
 from loopzoo.report.summary import (
     COST_FIELDS,
@@ -193,7 +201,17 @@ def _overall_section(summary: Summary, figure: Figure | None) -> list[Block]:
 def report_blocks(summary: Summary) -> list[Block]:
     """The whole report as document blocks, in reading order."""
     styles = styles_for(summary)
-    blocks: list[Block] = [Heading(1, TITLE), _reading_guide(summary), Heading(2, "Verdicts")]
+    entries = [("Verdicts", "verdicts")]
+    entries += [(f"Task: {task.label}", _anchor(task.label)) for task in summary.tasks]
+    entries.append(("Across tasks", "across-tasks"))
+    if summary.skipped:
+        entries.append(("Skipped files", "skipped"))
+    blocks: list[Block] = [
+        Heading(1, TITLE),
+        Contents(tuple(entries)),
+        _reading_guide(summary),
+        Heading(2, "Verdicts", "verdicts"),
+    ]
     for task in summary.tasks:
         blocks.append(Heading(3, task.label))
         blocks.append(Paragraph(" ".join(task_verdict(task, summary.alpha))))

@@ -5,7 +5,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-__all__ = ["Block", "Bullets", "Figure", "Heading", "Paragraph", "Table"]
+__all__ = ["Block", "Bullets", "Contents", "Figure", "Heading", "Paragraph", "Table"]
 
 
 @dataclass(frozen=True)
@@ -33,6 +33,13 @@ class Bullets:
 
 
 @dataclass(frozen=True)
+class Contents:
+    """Links to sections of the page: (text, anchor) pairs; plain list items in Markdown."""
+
+    entries: tuple[tuple[str, str], ...]
+
+
+@dataclass(frozen=True)
 class Table:
     """A table of text cells; ``numeric`` marks columns to right-align."""
 
@@ -51,4 +58,4 @@ class Figure:
     caption: str
 
 
-Block = Heading | Paragraph | Bullets | Table | Figure
+Block = Heading | Paragraph | Bullets | Contents | Table | Figure

@@ -6,7 +6,7 @@ import base64
 from collections.abc import Sequence
 from html import escape
 
-from loopzoo.report.document import Block, Bullets, Figure, Heading, Paragraph, Table
+from loopzoo.report.document import Block, Bullets, Contents, Figure, Heading, Paragraph, Table
 
 __all__ = ["render_html"]
 
@@ -62,6 +62,9 @@ def _block(block: Block) -> str:
         return f"<p{css}>{escape(block.text)}</p>"
     if isinstance(block, Bullets):
         return "<ul>\n" + "\n".join(f"<li>{escape(i)}</li>" for i in block.items) + "\n</ul>"
+    if isinstance(block, Contents):
+        links = " · ".join(f'<a href="#{escape(a)}">{escape(t)}</a>' for t, a in block.entries)
+        return f"<nav><p>Sections: {links}</p></nav>"
     if isinstance(block, Table):
         return _table(block)
     return _figure(block)

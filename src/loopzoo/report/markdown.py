@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from collections.abc import Sequence
 
-from loopzoo.report.document import Block, Bullets, Figure, Heading, Paragraph, Table
+from loopzoo.report.document import Block, Bullets, Contents, Figure, Heading, Paragraph, Table
 
 __all__ = ["render_markdown"]
 
@@ -33,6 +33,8 @@ def render_markdown(blocks: Sequence[Block]) -> str:
             out.append(f"> {block.text}" if block.note else block.text)
         elif isinstance(block, Bullets):
             out.append("\n".join(f"- {item}" for item in block.items))
+        elif isinstance(block, Contents):
+            out.append("Sections: " + " · ".join(text for text, _ in block.entries))
         elif isinstance(block, Table):
             out.append("\n".join(_table(block)))
         elif isinstance(block, Figure):
