@@ -114,8 +114,8 @@ def _train(cfg: DictConfig, run_dir: Path, started: str) -> dict[str, Any]:
 def run_one(cfg: DictConfig, *, threads: int | None = None, sweep: bool = False) -> Outcome:
     """Run the job ``cfg`` (a ``finish_config`` result) unless its record is kept on rerun.
 
-    Writes ``out/records/<run_id>.json`` atomically and the task's baseline records for the
-    seed. Raises ``ConfigError`` for configs refused before training and ``OutDirError`` for an
+    Writes ``out/records/<run_id>.json`` atomically, then the task's baseline records for the
+    seed (once per task config and seed). Raises ``ConfigError`` for configs refused before training and ``OutDirError`` for an
     output directory of another suite or schema. ``sweep`` hides Lightning's progress bar and
     counts the job in the sweep's progress.
     """
@@ -140,7 +140,6 @@ def _run_locked(cfg: DictConfig, out: Path, sweep: bool) -> Outcome:
             status, reason = "skipped", f"recorded {kept['status']}"
         else:
             started = records.utc_now()
-            ensure_baselines(cfg)
             if sweep:
                 cfg = cfg.copy()
                 with open_dict(cfg):
@@ -153,6 +152,8 @@ def _run_locked(cfg: DictConfig, out: Path, sweep: bool) -> Outcome:
             records.write_record(
                 out, records.make_record(body, run_id=rid, kind="model", config=config)
             )
+            # After the run, so a config refused before training leaves no record at all.
+            ensure_baselines(cfg)
             status, reason = body["status"], body.get("reason")
     return Outcome(rid, cfg.model.name, cfg.task.name, int(cfg.seed), status,
                    time.perf_counter() - tick, reason)

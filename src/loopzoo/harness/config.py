@@ -49,19 +49,20 @@ def cores() -> int:
         return os.cpu_count() or 1
 
 
-def output_kind(task_name: str) -> str:
-    """``"classes"`` for a classification task, ``"real"`` otherwise (output-feedback's option)."""
-    from loopzoo.tasks import TASKS
+def output_kind(task: DictConfig) -> str:
+    """``"classes"`` for a classification task, ``"real"`` otherwise (output-feedback's option).
+
+    Used in ``conf/model/output-feedback.yaml`` as ``${loopzoo.output_kind:${task}}``. A task
+    whose kind depends on its options (csv) is built once, without a seed, to ask it.
+    """
+    from loopzoo.tasks import TASKS, create
 
     try:
-        kind = getattr(TASKS.get(task_name), "kind", None)
-    except ValueError as error:
-        raise ConfigError(str(error)) from None
-    if kind not in ("regression", "classification"):
-        raise ConfigError(
-            f"task {task_name!r} decides its kind from its options: set "
-            "model.options.output_kind=real or =classes"
-        )
+        kind = getattr(TASKS.get(task.name), "kind", None)
+        if kind is None:
+            kind = create(task.name, **OmegaConf.to_container(task.options, resolve=True)).kind
+    except (ValueError, TypeError, OSError) as error:
+        raise ConfigError(f"task {task.name!r}: {error}") from None
     return "classes" if kind == "classification" else "real"
 
 
