@@ -115,9 +115,9 @@ def run_one(cfg: DictConfig, *, threads: int | None = None, sweep: bool = False)
     """Run the job ``cfg`` (a ``finish_config`` result) unless its record is kept on rerun.
 
     Writes ``out/records/<run_id>.json`` atomically, then the task's baseline records for the
-    seed (once per task config and seed). Raises ``ConfigError`` for configs refused before training and ``OutDirError`` for an
-    output directory of another suite or schema. ``sweep`` hides Lightning's progress bar and
-    counts the job in the sweep's progress.
+    seed (once per task config and seed). Raises ``ConfigError`` for configs refused before
+    training and ``OutDirError`` for an output directory of another suite or schema.
+    ``sweep`` hides Lightning's progress bar and counts the job in the sweep's progress.
     """
     import torch
 
