@@ -28,6 +28,7 @@ __all__ = ["Style", "styles_for", "task_figures", "overall_figure"]
 _COLOURS = ("#000000", "#0072B2", "#D55E00", "#009E73", "#CC79A7", "#56B4E9", "#E69F00", "#777777")
 _MARKERS = ("o", "s", "^", "D", "v", "P", "X", "*")
 _DASHES = ("-", "--", "-.", ":")
+_REACH_FLOOR = 1e-4
 _RC = {
     "font.size": 9,
     "axes.titlesize": 10,
@@ -231,13 +232,15 @@ def _gradient_by_lag(task: TaskSummary, styles: dict[str, Style]) -> Figure | No
                 axes.plot([p[0] for p in points], [p[1] for p in points], color=style.colour,
                           linestyle=style.dash, marker=style.marker, markersize=4,
                           markevery=max(1, len(points) // 8), label=row.label)
-            for level, text in ((0.1, "÷10"), (0.01, "÷100")):
+            for level, text in ((0.1, "fallen 10x"), (0.01, "fallen 100x")):
                 axes.axhline(level, color="#888888", linestyle=":", linewidth=1)
-                axes.annotate(text, (0, level), xycoords=("axes fraction", "data"),
-                              xytext=(2, 2), textcoords="offset points", fontsize=7)
+                axes.annotate(text, (1, level), xycoords=("axes fraction", "data"), ha="right",
+                              xytext=(-3, 2), textcoords="offset points", fontsize=7)
             axes.set_yscale("log")
+            # The thresholds matter, not how far below them a norm falls: cut the axis there.
+            axes.set_ylim(_REACH_FLOOR, 2.0)
             axes.set_xlabel("time lag (steps back from the loss)")
-            axes.set_ylabel("‖dL/dh‖ relative to lag 0 (log scale)")
+            axes.set_ylabel("‖dL/dh‖ relative to lag 0 (log scale, cut at 1e-4)")
             axes.set_title(title)
         panels[0].legend(loc="best")
         figure.suptitle(f"{task.label}: how far back the gradient reaches (median over seeds)")
