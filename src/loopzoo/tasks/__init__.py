@@ -11,20 +11,9 @@ statsmodels and scikit-learn are imported only inside the loaders and baselines 
 
 from __future__ import annotations
 
+import importlib
 from typing import Any
 
-# Importing a task file registers its tasks; the order here is the order of ``available()``.
-from loopzoo.tasks import (  # noqa: F401
-    csv_file,
-    digits,
-    fleet_log,
-    long_lag,
-    open_series,
-    parity,
-    reber,
-    sines,
-    text_file,
-)
 from loopzoo.tasks._base import SPLITS, ClassificationTask, RegressionTask, Split, Task
 from loopzoo.tasks._catalog import TASKS
 
@@ -38,6 +27,13 @@ __all__ = [
     "available",
     "create",
 ]
+
+# Importing a task file registers its tasks; this order (probes, open data, the user's files) is
+# the order of ``available()``.
+TASK_FILES = ("long_lag", "parity", "reber", "sines", "fleet_log", "open_series", "digits",
+              "csv_file", "text_file")
+for _file in TASK_FILES:
+    importlib.import_module(f"loopzoo.tasks.{_file}")
 
 
 def available() -> list[str]:
