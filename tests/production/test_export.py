@@ -10,6 +10,7 @@ import json
 
 import onnxruntime
 import pytest
+import torch
 
 import loopzoo
 from loopzoo.export import export_bytes, graphs_for, main, max_error, onnx_runner, runner_for
@@ -128,3 +129,28 @@ def test_command_bad_input_is_a_clear_error(build, tmp_path, capsys):
         assert main(argv) == 2, argv
         assert message in capsys.readouterr().err
     assert not (tmp_path / "o").exists()
+
+
+OPTION_VARIANTS = [
+    ("hidden-feedback", {"nonlinearity": "relu"}),
+    ("output-feedback", {"output_kind": "classes"}),
+    ("output-feedback", {"output_kind": "classes", "fed_back": "onehot"}),
+    ("output-feedback", {"fed_back": "detached"}),
+    ("stacked", {"num_layers": 3}),
+    ("deep-transition", {"shortcut": True, "output_depth": 2, "transition_depth": 3}),
+    ("residual-skip", {"mode": "gated", "num_layers": 2}),
+    ("lstm", {"num_layers": 2}),
+    ("gru", {"num_layers": 2}),
+]
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize(("name", "options"), OPTION_VARIANTS, ids=lambda v: str(v))
+def test_onnx_graphs_of_option_variants_match_eager(name, options):
+    if name not in loopzoo.available():
+        pytest.fail(f"topology {name!r} is not registered")
+    torch.manual_seed(0)
+    model = loopzoo.create(name, input_size=3, output_size=2, hidden_size=6, **options).eval()
+    for graph in graphs_for(model):
+        data = export_bytes(model, graph, "onnx")
+        assert max_error(model, graph, onnx_runner(data), BATCH_SIZES, LENGTHS) <= TOLERANCE, graph
