@@ -63,7 +63,8 @@ def save(
 
     ``metadata`` (task, metrics, run id, ...) must be JSON-serialisable with finite numbers; it is
     stored as given under ``"metadata"`` in ``model.json``. Both files are written atomically,
-    weights first, so a directory with a ``model.json`` always has the matching weights.
+    weights first; ``model.json`` records the weights' SHA-256, so a save interrupted between
+    the two files (or any later damage) is reported by ``load``, never loaded silently.
 
     Example::
 
@@ -158,6 +159,8 @@ def load(path: str | os.PathLike[str]) -> torch.nn.Module:
     source = Path(path)
     if source.is_dir():
         return _load_artifact(source)
+    if source.name == DESCRIPTION_FILE and source.is_file():
+        return _load_artifact(source.parent)
     if source.is_file():
         return _load_checkpoint(source)
     raise ArtifactError(f"{str(path)!r} is neither an artifact directory nor a checkpoint file")

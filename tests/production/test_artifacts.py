@@ -245,3 +245,20 @@ def test_a_crafted_pickle_with_code_is_refused_and_never_runs(build, tmp_path):
     # The file really carries code: an unrestricted unpickle runs it.
     torch.load(tmp_path / "evil.ckpt", weights_only=False)
     assert marker.is_dir()
+
+
+def test_a_save_interrupted_between_its_two_files_is_detected(build, tmp_path):
+    loopzoo.save(build("hidden-feedback", seed=0), tmp_path / "artifact")
+    old_description = (tmp_path / "artifact" / DESCRIPTION_FILE).read_bytes()
+    loopzoo.save(build("hidden-feedback", seed=1), tmp_path / "artifact")
+    # As if the second save had stopped after its weights: new weights, old description.
+    (tmp_path / "artifact" / DESCRIPTION_FILE).write_bytes(old_description)
+    with pytest.raises(ArtifactError, match="SHA-256 does not match"):
+        loopzoo.load(tmp_path / "artifact")
+
+
+def test_the_description_file_path_loads_its_artifact(build, tmp_path):
+    model = build("gru")
+    loopzoo.save(model, tmp_path / "artifact")
+    loaded = loopzoo.load(tmp_path / "artifact" / DESCRIPTION_FILE)
+    assert torch.equal(_outputs(model)[0], _outputs(loaded)[0])
