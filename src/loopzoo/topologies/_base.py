@@ -99,8 +99,10 @@ def scan(
     after each sequence's last valid step.
     """
     outputs = []
-    for t in range(inputs.shape[0]):
-        out, new = cell(inputs[t], state)
+    # unbind, not inputs[t]: the backward of one index op materialises a full (T, B, K) zero
+    # tensor, which made the loop quadratic in T.
+    for t, input_t in enumerate(inputs.unbind(0)):
+        out, new = cell(input_t, state)
         state = hold(None if valid is None else valid[t], new, state)
         outputs.append(out)
     return torch.stack(outputs), state

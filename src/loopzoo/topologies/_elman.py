@@ -126,15 +126,19 @@ class _AdditiveScan(torch.autograd.Function):
             if not carry:
                 bypass = (~valid).to(zs.dtype)
         grad_a = torch.empty_like(zs)
-        dh = grad_hs[steps - 1]
+        gains, grads_a, upstream = gain.unbind(0), grad_a.unbind(0), grad_hs.unbind(0)
+        bypasses = None if bypass is None else bypass.unbind(0)
+        dh = upstream[steps - 1]
         for t in range(steps - 1, -1, -1):
-            da = torch.mul(dh, gain[t], out=grad_a[t])
+            da = torch.mul(dh, gains[t], out=grads_a[t])
             if carry:
-                base = dh if t == 0 else dh + grad_hs[t - 1]
-            elif bypass is not None:
-                base = dh * bypass[t] if t == 0 else torch.addcmul(grad_hs[t - 1], dh, bypass[t])
+                base = dh if t == 0 else dh + upstream[t - 1]
+            elif bypasses is not None:
+                base = dh * bypasses[t] if t == 0 else torch.addcmul(
+                    upstream[t - 1], dh, bypasses[t]
+                )
             else:
-                base = None if t == 0 else grad_hs[t - 1]
+                base = None if t == 0 else upstream[t - 1]
             # dL/dh_{t-1} = (everything that reaches it directly) + da_t W.
             dh = da @ weight_hh if base is None else torch.addmm(base, da, weight_hh)
         grad_w = None

@@ -25,10 +25,12 @@ from loopzoo.topologies._activations import batched_tanh
 from loopzoo.topologies._base import (
     RecurrentTopology,
     State,
+    batch_first,
     check_finite,
-    hold,
     project_time_major,
     register,
+    scan,
+    time_major_mask,
     uniform_init,
 )
 from loopzoo.topologies._options import NONLINEARITY, Option, choice
@@ -130,20 +132,23 @@ class OutputFeedback(RecurrentTopology):
         if teacher_forcing == 1.0:
             return self._teacher_forced(x, state, valid, targets)
         u = project_time_major(x, self.weight_ih, self.bias)  # (T, B, H)
-        steps, batch = u.shape[0], u.shape[1]
+        hidden = self.hidden_size
         if teacher_forcing > 0.0:
-            # One coin per time step and sequence: True feeds the target.
-            coins = torch.rand(steps, batch, 1, device=x.device) < teacher_forcing
-            targets_tm = targets.transpose(0, 1)
-        outputs = []
-        for t in range(steps):
-            y_t = self._readout_step(u[t], state[0])
+            # One coin per time step and sequence: 1 feeds the target, 0 the model's own output.
+            draws = torch.rand(u.shape[0], u.shape[1], 1, device=x.device, dtype=u.dtype)
+            coins = (draws < teacher_forcing).to(u.dtype)
+            u = torch.cat([u, targets.transpose(0, 1), coins], dim=-1)  # (T, B, H + O + 1)
+
+        def cell(step_input: Tensor, carried: State) -> tuple[Tensor, State]:
+            y_t = self._readout_step(step_input[:, :hidden], carried[0])
             fed = self._feed(y_t)
             if teacher_forcing > 0.0:
-                fed = torch.where(coins[t], targets_tm[t], fed)
-            state = hold(None if valid is None else valid[:, t:t + 1], (fed,), state)
-            outputs.append(y_t)
-        return torch.stack(outputs, dim=1), state
+                target_t, coin_t = step_input[:, hidden:-1], step_input[:, -1:]
+                fed = torch.where(coin_t > 0.0, target_t, fed)
+            return y_t, (fed,)
+
+        ys, final = scan(cell, u, state, time_major_mask(valid))
+        return batch_first(ys), final
 
     def _teacher_forced(self, x, state, valid, targets) -> tuple[Tensor, State]:
         """All steps at once: o_{t-1} = targets[:, t-1], and the carried state at t = 0."""
