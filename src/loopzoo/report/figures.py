@@ -6,6 +6,7 @@ Rows are told apart by marker and line style as well as colour, so pages stay le
 from __future__ import annotations
 
 import io
+import math
 import statistics
 from collections import defaultdict
 from collections.abc import Iterator, Sequence
@@ -143,35 +144,44 @@ def _front_line(axes: Axes, points: list[tuple[float, float]]) -> None:
     axes.scatter(xs, ys, s=160, facecolors="none", edgecolors="#444444", linewidths=1.2, zorder=2)
 
 
-def _x_scale(axes: Axes, values: Sequence[float]) -> bool:
-    """Log scale when the values span more than 10x; returns whether it was chosen."""
-    wide = bool(values) and min(values) > 0 and max(values) / min(values) > 10
+def _x_scale(axes: Axes, points: Sequence[tuple[float, float, str]]) -> bool:
+    """Log scale when the x values span more than 10x, then label each point on the side with
+    room (left of points in the right part of the axes); returns whether log scale was chosen."""
+    xs = [x for x, _, _ in points]
+    wide = bool(xs) and min(xs) > 0 and max(xs) / min(xs) > 10
     if wide:
         axes.set_xscale("log")
-    axes.margins(x=0.18)  # room for the point labels
+    axes.margins(x=0.12)
+    low, high = axes.get_xlim()
+    for x, y, label in points:
+        if wide:
+            fraction = math.log(x / low) / math.log(high / low)
+        else:
+            fraction = (x - low) / (high - low) if high > low else 0.5
+        left = fraction > 0.6
+        axes.annotate(label, (x, y), textcoords="offset points", xytext=(-6 if left else 6, 4),
+                      ha="right" if left else "left", fontsize=7)
     return wide
 
 
 def _quality_panel(axes: Axes, task: TaskSummary, rows: Sequence[Row], styles: dict[str, Style],
                    attribute: str) -> None:
-    front, xs = [], []
+    front, points = [], []
     for row in rows:
         x = row.cost.get(LATENCY_FIELD) if attribute == "latency" else row.params_value
         if not x or row.interval is None:
             continue
-        xs.append(x)
+        points.append((x, row.interval.mean, row.label))
         style = styles[row.label]
         half = row.interval.half_width or 0.0
         axes.errorbar([x], [row.interval.mean], yerr=[[half], [half]], color=style.colour,
                       marker=style.marker, linestyle="none", capsize=3, label=row.label, zorder=3)
-        axes.annotate(row.label, (x, row.interval.mean), textcoords="offset points",
-                      xytext=(6, 4), fontsize=7)
         flag = row.front_latency if attribute == "latency" else row.front_params
         if flag:
             front.append((x, row.interval.mean))
     if front:
         _front_line(axes, front)
-    scale = ", log scale" if _x_scale(axes, xs) else ""
+    scale = ", log scale" if _x_scale(axes, points) else ""
     direction = "lower" if task.goal == "min" else "higher"
     axes.set_ylabel(f"test {task.metric} ({direction} is better; bar: 95% CI)")
     if attribute == "latency":
@@ -274,12 +284,11 @@ def overall_figure(summary: Summary, styles: dict[str, Style]) -> Figure | None:
             style = styles[row.label]
             axes.plot([row.relative_latency], [row.mean_rank], color=style.colour,
                       marker=style.marker, linestyle="none", markersize=7, label=row.label)
-            axes.annotate(row.label, (row.relative_latency, row.mean_rank),
-                          textcoords="offset points", xytext=(6, 4), fontsize=7)
         front = [(r.relative_latency, r.mean_rank) for r in rows if r.on_front]
         if front:
             _front_line(axes, front)
-        scale = ", log scale" if _x_scale(axes, [r.relative_latency for r in rows]) else ""
+        points = [(r.relative_latency, r.mean_rank, r.label) for r in rows]
+        scale = ", log scale" if _x_scale(axes, points) else ""
         axes.invert_yaxis()
         axes.set_xlabel(f"step latency relative to the fastest topology per task (x{scale})")
         axes.set_ylabel("mean rank over tasks (1 = best)")
