@@ -56,6 +56,7 @@ class StreamRunner:
         self._advance = getattr(model, "_step", model.step)
         self._initial = tuple(t.detach() for t in model.init_state(1))
         self._sample_shape = torch.Size([model.input_size])
+        self._dtype = self._initial[0].dtype if self._initial else torch.float32
         self._states: dict[Hashable, tuple[torch.Tensor, ...]] = {}
 
     @property
@@ -165,8 +166,8 @@ class StreamRunner:
             ) from None
 
     def _as_row(self, sample: Sample, name: str) -> torch.Tensor:
-        """One (input_size,) sample as a finite float32 (1, input_size) tensor, or explain."""
-        row = torch.as_tensor(sample, dtype=torch.float32)
+        """One (input_size,) sample as a finite (1, input_size) tensor of the model's dtype."""
+        row = torch.as_tensor(sample, dtype=self._dtype)
         if row.shape != self._sample_shape:
             raise ValueError(
                 f"{name} has shape {tuple(row.shape)}; expected ({self.model.input_size},) "
@@ -176,7 +177,7 @@ class StreamRunner:
             row = row.detach()
         values = row.numpy()
         # A finite sum proves every value finite and costs far less than an elementwise test;
-        # the exact test runs only when the sum is not finite (NaN, inf, or float32 overflow).
+        # the exact test runs only when the sum is not finite (NaN, inf, or overflow).
         if not math.isfinite(values.sum()) and not np.isfinite(values).all():
             raise ValueError(f"{name} contains NaN or infinite values")
         return row.unsqueeze(0)
