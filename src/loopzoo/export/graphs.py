@@ -2,10 +2,10 @@
 
 - ``step``: ``(x_t, state_0, ..) -> (y_t, next_state_0, ..)``, dynamic batch. Every topology.
 - ``sequence``: ``(x, state_0, ..) -> (y, final_state_0, ..)``, dynamic batch and time. The time
-  loop is ``torch._higher_order_ops.scan`` over ``step`` (a private, prototype torch API): a Python
-  loop would freeze the traced length. For output feedback this is free running.
+  loop is ``torch._higher_order_ops.scan`` over the step (a private, prototype torch API): a
+  Python loop would freeze the traced length. For output feedback this is free running.
 - ``sequence-teacher-forced``: ``(x, targets, state_0, ..) -> (y, final_state_0, ..)`` for
-  topologies that feed back outputs: teacher forcing has no time loop, so ``forward`` exports as is.
+  topologies that feed back outputs: their teacher-forced pass has no time loop to freeze.
 
 All tensors are batch first: x_t (B, input_size), x (B, T, input_size), y (B, T, output_size),
 targets (B, T, output_size) floats (one-hot rows for class outputs), state as ``init_state(B)``.
