@@ -17,7 +17,9 @@ __all__ = ["batched_tanh"]
 class _SigmoidTanh(torch.autograd.Function):
     @staticmethod
     def forward(ctx: FunctionCtx, a: Tensor) -> Tensor:  # type: ignore[override]
-        y = torch.sigmoid(a * 2.0).mul_(2.0).sub_(1.0)
+        # One fresh buffer, updated in place: large temporaries cost more than the arithmetic.
+        y = a.mul(2.0)
+        y.sigmoid_().mul_(2.0).sub_(1.0)
         ctx.save_for_backward(y)
         return y
 
@@ -25,7 +27,8 @@ class _SigmoidTanh(torch.autograd.Function):
     @once_differentiable
     def backward(ctx: FunctionCtx, grad: Tensor) -> Tensor:  # type: ignore[override]
         (y,) = ctx.saved_tensors
-        return torch.addcmul(grad, grad * y, y, value=-1.0)
+        grad_a = grad * y
+        return grad_a.mul_(y).neg_().add_(grad)  # grad (1 - y^2)
 
 
 def batched_tanh(a: Tensor) -> Tensor:
