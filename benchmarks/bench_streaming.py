@@ -47,6 +47,18 @@ def runner_step(model: torch.nn.Module) -> Callable[[torch.Tensor], torch.Tensor
     return lambda x_t: runner.push("bench", x_t)
 
 
+def public_step(model: torch.nn.Module) -> Callable[[torch.Tensor], torch.Tensor]:
+    """The module's public ``step`` (it re-checks shapes, dtypes and state on every call)."""
+    state = {"s": model.init_state(1)}
+
+    def step(x_t: torch.Tensor) -> torch.Tensor:
+        with torch.inference_mode():
+            y_t, state["s"] = model.step(x_t.unsqueeze(0), state["s"])
+            return y_t[0]
+
+    return step
+
+
 def onnx_step(model: torch.nn.Module) -> Callable[[torch.Tensor], np.ndarray]:
     import onnxruntime
 
@@ -93,6 +105,8 @@ def main() -> None:
             name, input_size=INPUT_SIZE, output_size=OUTPUT_SIZE, hidden_size=args.hidden
         ).eval()
         candidates[f"{name} via StreamRunner"] = runner_step(model)
+        if name == "hidden-feedback":
+            candidates[f"{name} via its public step, no runner"] = public_step(model)
         candidates[f"{name} via onnxruntime step graph"] = onnx_step(model)
     for step in candidates.values():  # warm-up: allocator, first-call paths
         time_block(step, samples[:50])
