@@ -1,0 +1,125 @@
+"""Sweeps: expansion like Hydra's multirun, one record per run, progress lines, reruns, refusals.
+
+These run Hydra's basic (in-process) launcher on tiny jobs; the parallel launchers and a real
+SIGKILL are in the slow tests (test_launchers.py, test_sweep_resume.py).
+"""
+
+import json
+
+import pytest
+
+import loopzoo.harness.training as training
+from loopzoo.harness import records, state
+from loopzoo.harness.errors import ConfigError, OutDirError
+from loopzoo.harness.sweep import plan_sweep, run_sweep
+
+TINY = ["task=adding", "task.options.length=5", "+task.options.train_size=16",
+        "+task.options.val_size=8", "+task.options.test_size=8", "task.batch_size=8",
+        "task.budget=300", "trainer.max_steps=2", "protocol.val_every=1",
+        "protocol.lr_grid=null", "hydra/launcher=basic"]
+
+
+def model_records(out):
+    return {r["model"]: r for r in records.load_records(out) if r["kind"] == "model"}
+
+
+def test_comma_lists_expand_to_their_product(tmp_path):
+    plan = plan_sweep(["model=gru,lstm", "task=adding,copy", "seed=1,2,3", f"out={tmp_path}"])
+    assert len(plan.jobs) == 12
+    assert {(j.model.name, j.task.name, j.seed) for j in plan.jobs} == {
+        (m, t, s) for m in ("gru", "lstm") for t in ("adding", "copy") for s in (1, 2, 3)}
+    assert len(set(plan.run_ids)) == 12
+
+
+def test_the_command_line_narrows_a_suite(tmp_path):
+    plan = plan_sweep(["suite=quick", "model=gru", "seed=5", f"out={tmp_path}"])
+    assert {j.model.name for j in plan.jobs} == {"gru"} and {j.seed for j in plan.jobs} == {5}
+    assert len(plan.jobs) == len({j.task.name for j in plan.jobs})
+    assert plan.suite == "quick"
+
+
+def test_a_bad_value_anywhere_in_the_sweep_is_refused_before_anything_runs(tmp_path):
+    with pytest.raises(ConfigError, match="job model=gru task=nope"):
+        plan_sweep(["model=gru", "task=adding,nope", f"out={tmp_path}"])
+    assert not tmp_path.joinpath("records").exists()
+
+
+def test_a_sweep_records_each_run_once_with_a_progress_line_each(tmp_path, capsys):
+    assert run_sweep(["model=gru,lstm", "seed=0", f"out={tmp_path}", *TINY]) == 0
+    out = capsys.readouterr().out
+    assert "sweep: 2 runs (2 distinct), 0 already recorded" in out
+    lines = [line for line in out.splitlines() if line.startswith("[")]
+    assert [line.split("]")[0] for line in lines] == ["[  1/2", "[  2/2"]
+    assert {line.split()[2] for line in lines} == {"gru", "lstm"}
+    assert all(" ok " in line and line.endswith(" s") for line in lines)
+    found = model_records(tmp_path)
+    assert set(found) == {"gru", "lstm"} and all(r["status"] == "ok" for r in found.values())
+    # The baselines of the shared (task, seed) are recorded once, not once per model.
+    baselines = [r for r in records.load_records(tmp_path) if r["kind"] == "baseline"]
+    assert len(baselines) == len({r["model"] for r in baselines}) > 0
+    # The sweep hides Lightning's progress bar, without changing the run ids.
+    assert all(r["config"]["trainer"]["enable_progress_bar"] is False for r in found.values())
+    assert not (tmp_path / ".state" / "plan.json").exists()
+
+    assert run_sweep(["model=gru,lstm", "seed=0", f"out={tmp_path}", *TINY]) == 0
+    out = capsys.readouterr().out
+    assert "2 already recorded" in out and "sweep done: 2 skipped" in out
+
+
+def test_failed_and_diverged_runs_are_recorded_and_the_sweep_goes_on(tmp_path, monkeypatch,
+                                                                      capsys):
+    real = training.train_and_evaluate
+
+    def flaky(cfg, run_dir):
+        if cfg.model.name == "lstm":
+            raise RuntimeError("the node ran out of memory")
+        body = real(cfg, run_dir)
+        if cfg.model.name == "gru":
+            body.update(status="diverged", reason="loss is nan", diverged_at_step=1)
+        return body
+
+    monkeypatch.setattr(training, "train_and_evaluate", flaky)
+    sweep = ["model=lstm,gru,hidden-feedback", "seed=0", f"out={tmp_path}", *TINY]
+    assert run_sweep(sweep) == 0
+    out = capsys.readouterr().out
+    assert "sweep done: 1 diverged, 1 failed, 1 ok" in out
+    found = model_records(tmp_path)
+    assert found["lstm"]["status"] == "failed"
+    assert found["lstm"]["reason"] == "RuntimeError: the node ran out of memory"
+    error_file = tmp_path / "runs" / found["lstm"]["run_id"] / "error.txt"
+    assert "the node ran out of memory" in error_file.read_text()
+    assert (found["gru"]["status"], found["gru"]["diverged_at_step"]) == ("diverged", 1)
+    assert found["hidden-feedback"]["status"] == "ok"
+
+    # A rerun redoes the failed run only: diverged is a result of config and seed, kept.
+    monkeypatch.setattr(training, "train_and_evaluate", real)
+    assert run_sweep(sweep) == 0
+    assert "sweep done: 1 ok, 2 skipped" in capsys.readouterr().out
+    again = model_records(tmp_path)
+    assert again["lstm"]["status"] == "ok"
+    assert again["gru"] == found["gru"] and again["hidden-feedback"] == found["hidden-feedback"]
+
+
+def test_jobs_refused_inside_the_sweep_exit_2_with_the_reason(tmp_path, capsys):
+    # The smallest lstm here has 22 parameters; hidden-feedback fits in 20; the sweep finishes.
+    code = run_sweep(["model=lstm,hidden-feedback", f"out={tmp_path}", *TINY, "task.budget=20"])
+    captured = capsys.readouterr()
+    assert code == 2
+    assert "refused: lstm adding seed=0: task.budget = 20 cannot be met" in captured.err
+    assert set(model_records(tmp_path)) <= {"hidden-feedback"}
+
+
+def test_a_second_sweep_into_the_same_out_is_refused(tmp_path):
+    with state.sweep_lock(tmp_path), pytest.raises(OutDirError, match="in use by another"):
+        run_sweep(["model=gru", f"out={tmp_path}", *TINY])
+
+
+def test_temporary_files_of_a_killed_write_are_cleared(tmp_path):
+    records.claim_out_dir(tmp_path, None)
+    stale = tmp_path / "records" / ".adding-gru-s0-0000000000.json.abc.tmp"
+    stale.parent.mkdir(parents=True)
+    stale.write_text('{"schema": "loopzo')
+    assert run_sweep(["model=gru", f"out={tmp_path}", *TINY]) == 0
+    assert not stale.exists()
+    for path in (tmp_path / "records").iterdir():
+        json.loads(path.read_text())
