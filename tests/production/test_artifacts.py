@@ -6,6 +6,8 @@ import hashlib
 import json
 import os
 import pickle
+import subprocess
+import sys
 from pathlib import Path
 
 import pytest
@@ -262,3 +264,20 @@ def test_the_description_file_path_loads_its_artifact(build, tmp_path):
     loopzoo.save(model, tmp_path / "artifact")
     loaded = loopzoo.load(tmp_path / "artifact" / DESCRIPTION_FILE)
     assert torch.equal(_outputs(model)[0], _outputs(loaded)[0])
+
+
+def test_loading_and_streaming_need_only_torch_and_safetensors(build, tmp_path):
+    loopzoo.save(build("hidden-feedback"), tmp_path / "artifact")
+    script = (
+        "import sys, loopzoo\n"
+        "from loopzoo.streaming import StreamRunner\n"
+        f"runner = StreamRunner(loopzoo.load({str(tmp_path / 'artifact')!r}))\n"
+        "runner.start(0); runner.push(0, [0.0, 1.0, 2.0])\n"
+        "heavy = {'lightning', 'hydra', 'onnx', 'onnxruntime', 'onnxscript', 'statsmodels',\n"
+        "         'sklearn', 'scipy', 'pandas', 'matplotlib'}\n"
+        "print(sorted({m.split('.')[0] for m in sys.modules} & heavy))\n"
+    )
+    completed = subprocess.run(
+        [sys.executable, "-c", script], capture_output=True, text=True, check=True, timeout=120
+    )
+    assert completed.stdout.strip() == "[]"
