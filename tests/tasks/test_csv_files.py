@@ -72,8 +72,8 @@ def test_classification_reads_variable_length_sequences(tmp_path):
         # steps written in reverse: the time column puts them back in order
         lines += [f"b{batch},{s},{temps[s]},{label}" for s in reversed(range(steps))]
     path = write(tmp_path, "kiln.csv", "\n".join(lines) + "\n")
-    task = loopzoo.tasks.create("csv", path=str(path), label="outcome", sequence="batch",
-                                time="step", seed=2)
+    task = loopzoo.tasks.create("csv-sequences", path=str(path), label="outcome",
+                                sequence="batch", time="step", seed=2)
     facts = task.describe()
     assert facts["classes"] == ["cracked", "sound"] and facts["sequences"] == 40
     mean, std = facts["scaling"]["mean"][0], facts["scaling"]["std"][0]
@@ -99,12 +99,27 @@ def test_classification_logistic_matches_sklearn(tmp_path):
         label = run % 3
         lines += [f"r{run},{rng.normal(label, 0.7):.3f},{label}" for _ in range(5)]
     path = write(tmp_path, "motor.csv", "\n".join(lines) + "\n")
-    task = loopzoo.tasks.create("csv", path=str(path), label="outcome", sequence="run")
+    task = loopzoo.tasks.create("csv-sequences", path=str(path), label="outcome", sequence="run")
     train, test = task.split("train"), task.split("test")
     model = LogisticRegression(max_iter=5000).fit(train.x.reshape(len(train), -1).numpy(),
                                                   train.y[:, -1].numpy())
     expected = model.score(test.x.reshape(len(test), -1).numpy(), test.y[:, -1].numpy())
     assert abs(task.baselines()["logistic"]["accuracy"] - expected) <= 0.01
+
+
+def test_logistic_handles_test_sequences_longer_than_any_training_one(tmp_path):
+    lines = ["run,current_a,outcome"]
+    for run in range(30):
+        lines += [f"r{run},{0.1 * step + run % 2:.2f},{run % 2}" for step in range(2 + run)]
+    path = write(tmp_path, "ramp.csv", "\n".join(lines) + "\n")
+    for seed in range(20):
+        task = loopzoo.tasks.create("csv-sequences", path=str(path), label="outcome",
+                                    sequence="run", seed=seed)
+        if task.split("test").x.shape[1] > task.split("train").x.shape[1]:
+            break
+    else:
+        pytest.fail("no seed put the longest sequence in the test part")
+    assert 0 <= task.baselines()["logistic"]["accuracy"] <= 1
 
 
 HEADER = "minute,pressure_bar,flow_lpm\n"
@@ -164,7 +179,8 @@ def test_bad_classification_files(tmp_path, content, message):
     path = write(tmp_path, "bad.csv", content)
     before = listing(tmp_path)
     with pytest.raises(ValueError, match=message):
-        loopzoo.tasks.create("csv", path=str(path), label="outcome", sequence="run").split("test")
+        loopzoo.tasks.create("csv-sequences", path=str(path), label="outcome",
+                             sequence="run").split("test")
     assert listing(tmp_path) == before
 
 
@@ -172,12 +188,15 @@ def test_bad_csv_options(tmp_path):
     path = write(tmp_path, "ok.csv", CLASS_HEADER + "r1,2.0,ok\n")
     with pytest.raises(FileNotFoundError, match="missing.csv"):
         loopzoo.tasks.create("csv", path=str(tmp_path / "missing.csv"), target="x")
-    with pytest.raises(ValueError, match="not both"):
-        loopzoo.tasks.create("csv", path=str(path), target="current_a", label="outcome")
+    with pytest.raises(ValueError, match="use task 'csv-sequences'"):
+        loopzoo.tasks.create("csv", path=str(path), label="outcome", sequence="run")
     with pytest.raises(ValueError, match="needs target"):
         loopzoo.tasks.create("csv", path=str(path))
-    with pytest.raises(ValueError, match="sequence"):
-        loopzoo.tasks.create("csv", path=str(path), label="outcome")
+    with pytest.raises(ValueError, match="needs label=<column> and sequence"):
+        loopzoo.tasks.create("csv-sequences", path=str(path), label="outcome")
+    with pytest.raises(ValueError, match="unknown csv-sequences option 'target'"):
+        loopzoo.tasks.create("csv-sequences", path=str(path), label="outcome", sequence="run",
+                             target="current_a")
     with pytest.raises(ValueError, match="both target and features"):
         loopzoo.tasks.create("csv", path=str(path), target="current_a", features=["current_a"])
     with pytest.raises(ValueError, match="unknown csv option 'windw'.*window"):

@@ -51,17 +51,22 @@ class SequenceClassTask(ClassificationTask):
     """Sequence classification; baselines scored at each test sequence's last valid step.
 
     "logistic": scikit-learn LogisticRegression (max_iter=5000, otherwise its defaults) on the
-    flattened, zero-padded input sequences of the training part. "prior": the training class
-    frequencies, add-one smoothed, for every sequence.
+    flattened input sequences of the training part, zero-padded to the longest training
+    sequence (steps of longer test sequences are beyond its reach and cut). "prior": the
+    training class frequencies, add-one smoothed, for every sequence.
     """
 
     metric = "accuracy"
     goal = "max"
 
     @staticmethod
-    def _flat(split: Split) -> tuple[np.ndarray, np.ndarray]:
+    def _flat(split: Split, steps: int) -> tuple[np.ndarray, np.ndarray]:
+        """(N, steps * I) zero-padded inputs (cut after ``steps``) and the (N,) labels."""
         labels = split.y[np.arange(len(split)), split.lengths - 1].numpy()
-        return split.x.reshape(len(split), -1).numpy().astype(np.float64), labels
+        x = np.zeros((len(split), steps, split.x.shape[2]))
+        kept = min(steps, split.x.shape[1])
+        x[:, :kept] = split.x[:, :kept].numpy()
+        return x.reshape(len(split), -1), labels
 
     def _at_last_step(self, split: Split, log_probs: np.ndarray) -> np.ndarray:
         logits = np.zeros((*split.mask.shape, self.output_size))
@@ -73,8 +78,9 @@ class SequenceClassTask(ClassificationTask):
         from threadpoolctl import threadpool_limits
 
         train, test = self.split("train"), self.split("test")
-        train_x, train_labels = self._flat(train)
-        test_x, _ = self._flat(test)
+        steps = train.x.shape[1]
+        train_x, train_labels = self._flat(train, steps)
+        test_x, _ = self._flat(test, steps)
         # One BLAS thread: on small shared CPUs a threaded BLAS made this fit ~100x slower.
         with threadpool_limits(limits=1):
             model = LogisticRegression(max_iter=5000).fit(train_x, train_labels)

@@ -1,9 +1,10 @@
-"""The user's own CSV file: forecasting target columns, or classifying variable-length sequences.
+"""The user's own CSV file: "csv" forecasts target columns, "csv-sequences" classifies
+variable-length sequences.
 
     loopzoo.tasks.create("csv", path="load.csv", target="kw", features=["temp"], time="hour",
                          window=48, horizons=[1, 24])
-    loopzoo.tasks.create("csv", path="trips.csv", label="outcome", sequence="trip_id",
-                         time="t")
+    loopzoo.tasks.create("csv-sequences", path="trips.csv", label="outcome",
+                         sequence="trip_id", time="t")
 """
 
 from __future__ import annotations
@@ -15,7 +16,7 @@ from typing import Any
 
 import numpy as np
 
-from loopzoo.tasks._base import SPLITS, Split, Task, split_generators
+from loopzoo.tasks._base import SPLITS, Split, split_generators
 from loopzoo.tasks._catalog import TASKS
 from loopzoo.tasks._csv_table import CsvTable, read_csv_table
 from loopzoo.tasks._options import check_fraction, check_str_list
@@ -23,7 +24,7 @@ from loopzoo.tasks._scaling import Standardizer
 from loopzoo.tasks._sequence_classes import SequenceClassTask, encode_sequences, stratified_parts
 from loopzoo.tasks._series import SeriesData, SeriesOptions, SeriesTask
 
-__all__ = ["CsvClassTask", "CsvForecastTask", "create_csv_task"]
+__all__ = ["CsvClassTask", "CsvForecastTask"]
 
 
 def _check_path(path: object) -> None:
@@ -70,7 +71,8 @@ class CsvForecastOptions(SeriesOptions):
         super().__post_init__()
         _check_path(self.path)
         if self.target is None:
-            raise ValueError("csv forecasting needs target=<column or list of columns>")
+            raise ValueError("csv needs target=<column or list of columns> to forecast (to "
+                             "classify sequences use task 'csv-sequences')")
         object.__setattr__(self, "target", check_str_list("target", self.target))
         object.__setattr__(self, "features",
                            check_str_list("features", self.features or (), allow_empty=True))
@@ -79,6 +81,7 @@ class CsvForecastOptions(SeriesOptions):
                         time=(self.time,) if self.time else ())
 
 
+@TASKS.register("csv")
 class CsvForecastTask(SeriesTask):
     """Forecast the ``target`` columns of a CSV file (see ``SeriesTask`` for windows, parts,
     scaling and baselines). Rows are ordered by ``time`` if given; no cell may be missing.
@@ -89,6 +92,12 @@ class CsvForecastTask(SeriesTask):
 
     name = "csv"
     Options = CsvForecastOptions
+
+    def __init__(self, seed: int = 0, **options: Any) -> None:
+        if "label" in options or "sequence" in options:
+            raise ValueError("task 'csv' forecasts target columns; to classify sequences by a "
+                             "label column use task 'csv-sequences' (path, label, sequence)")
+        super().__init__(seed, **options)
 
     def _load(self) -> SeriesData:
         table = read_csv_table(Path(self.options.path))
@@ -120,7 +129,7 @@ class CsvClassOptions:
     def __post_init__(self) -> None:
         _check_path(self.path)
         if self.label is None or self.sequence is None:
-            raise ValueError("csv classification needs label=<column> and sequence=<column>")
+            raise ValueError("csv-sequences needs label=<column> and sequence=<column>")
         _check_optional_name("label", self.label)
         _check_optional_name("sequence", self.sequence)
         _check_optional_name("time", self.time)
@@ -135,6 +144,7 @@ class CsvClassOptions:
                         time=(self.time,) if self.time else (), features=self.features or ())
 
 
+@TASKS.register("csv-sequences")
 class CsvClassTask(SequenceClassTask):
     """Classify the variable-length sequences of a CSV file (rows grouped by ``sequence``).
 
@@ -146,7 +156,7 @@ class CsvClassTask(SequenceClassTask):
         >>> loopzoo.tasks.create("csv", path="trips.csv", label="outcome", sequence="trip_id")
     """
 
-    name = "csv"
+    name = "csv-sequences"
     Options = CsvClassOptions
 
     def __init__(self, seed: int = 0, **options: Any) -> None:
@@ -219,15 +229,3 @@ class CsvClassTask(SequenceClassTask):
                 "sequence_length": {"min": min(lengths), "max": max(lengths)},
                 "scaling": self.input_scaler.describe()}
 
-
-@TASKS.register("csv")
-def create_csv_task(seed: int = 0, **options: Any) -> Task:
-    """Forecasting with ``target=...``; sequence classification with ``label=...``."""
-    if "label" in options and "target" in options:
-        raise ValueError("csv takes either target=... (forecasting) or label=... "
-                         "(sequence classification), not both")
-    if "label" not in options and "target" not in options:
-        raise ValueError("csv needs target=<column(s)> to forecast, or label=<column> and "
-                         "sequence=<column> to classify sequences")
-    task_type = CsvClassTask if "label" in options else CsvForecastTask
-    return task_type(seed, **options)
