@@ -6,6 +6,8 @@ same rows.
 
 import numpy as np
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 from sklearn.linear_model import LogisticRegression
 
 import loopzoo
@@ -206,3 +208,26 @@ def test_bad_csv_options(tmp_path):
         bad.write_bytes(b"run,temp\nr1,\xb0C\n")
         loopzoo.tasks.create("csv", path=str(bad), target="temp")
     assert listing(tmp_path) == ["latin.csv", "ok.csv"]
+
+
+CELLS = st.sampled_from(["0", "1.5", "-2", "", "nan", "x", "1e3", "inf", " 3 ", '"4"', "a,b"])
+
+
+@settings(max_examples=60, deadline=None)
+@given(st.lists(st.lists(CELLS, min_size=1, max_size=4), min_size=0, max_size=30),
+       st.booleans())
+def test_any_file_builds_or_raises_a_clear_error(tmp_path_factory, rows, classify):
+    # Fuzzed files: the only outcomes are a working task or a ValueError naming the file.
+    folder = tmp_path_factory.mktemp("fuzz")
+    body = "\n".join(",".join(row) for row in rows)
+    path = write(folder, "fuzz.csv", "run,value,outcome\n" + body + "\n")
+    try:
+        if classify:
+            task = loopzoo.tasks.create("csv-sequences", path=str(path), label="outcome",
+                                        sequence="run")
+        else:
+            task = loopzoo.tasks.create("csv", path=str(path), target="value", window=1)
+        task.split("test")
+    except ValueError as error:
+        assert str(path) in str(error) or "line" in str(error) or "column" in str(error)
+    assert listing(folder) == ["fuzz.csv"]

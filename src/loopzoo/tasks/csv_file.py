@@ -29,7 +29,7 @@ __all__ = ["CsvClassTask", "CsvForecastTask"]
 
 def _check_path(path: object) -> None:
     if path is None:
-        raise ValueError("csv needs path=<a CSV file with a header row>")
+        raise ValueError("path=<a CSV file with a header row> is required")
     if not isinstance(path, str | os.PathLike):
         raise ValueError(f"path must be a file path, got {path!r}")
 
