@@ -95,7 +95,7 @@ class StreamRunner:
         if not ids:
             return {}
         states = [self._require(stream_id) for stream_id in ids]
-        x_t = torch.cat([self._as_row(samples[i], f"samples[{i!r}]") for i in ids])
+        x_t = self._as_batch(samples, ids)
         with torch.inference_mode():
             batched = tuple(torch.cat(parts) for parts in zip(*states, strict=True))
             y_t, batched = self._advance(x_t, batched)
@@ -175,12 +175,35 @@ class StreamRunner:
             )
         if row.requires_grad:
             row = row.detach()
-        values = row.numpy()
-        # A finite sum proves every value finite and costs far less than an elementwise test;
-        # the exact test runs only when the sum is not finite (NaN, inf, or overflow).
-        if not math.isfinite(values.sum()) and not np.isfinite(values).all():
+        if not _all_finite(row):
             raise ValueError(f"{name} contains NaN or infinite values")
         return row.unsqueeze(0)
+
+    def _as_batch(self, samples: Mapping[Hashable, Sample], ids: list[Hashable]) -> torch.Tensor:
+        """The samples of ``ids`` as one checked (B, input_size) batch.
+
+        Checked as a whole first (one stack, one finiteness test); only a batch that fails is
+        checked sample by sample, so the error names the offending stream.
+        """
+        try:
+            batch = torch.stack([torch.as_tensor(samples[i], dtype=self._dtype) for i in ids])
+        except (RuntimeError, TypeError, ValueError):
+            batch = None
+        if batch is not None:
+            batch = batch.detach()
+            if batch.shape[1:] == self._sample_shape and _all_finite(batch):
+                return batch
+        return torch.cat([self._as_row(samples[i], f"samples[{i!r}]") for i in ids])
+
+def _all_finite(values: torch.Tensor) -> bool:
+    """True if no value is NaN or infinite.
+
+    A finite sum proves every value finite and costs far less than an elementwise test; the exact
+    test runs only when the sum is not finite (NaN, inf, or overflow of the sum itself).
+    """
+    array = values.numpy()
+    return math.isfinite(array.sum()) or bool(np.isfinite(array).all())
+
 
 def _read_metadata(data: bytes) -> dict[str, str]:
     """The ``__metadata__`` of a safetensors buffer (its JSON header), without reading tensors."""
