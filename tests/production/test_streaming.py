@@ -98,6 +98,10 @@ def test_bad_input_is_a_clear_error(build):
     runner.start("pump-3")
     with pytest.raises(ValueError, match=r"samples\['pump-3'\] contains NaN"):
         runner.push_many({"pump-1": [0.0, 0.0, 0.0], "pump-3": [float("inf"), 0.0, 0.0]})
+    with pytest.raises(ValueError, match=r"samples\['pump-3'\] has shape \(2,\)"):
+        runner.push_many({"pump-1": [0.0, 0.0, 0.0], "pump-3": [0.0, 0.0]})
+    with pytest.raises(ValueError, match=r"samples\['pump-1'\] has shape \(1, 3\)"):
+        runner.push_many({"pump-1": [[0.0, 0.0, 0.0]], "pump-3": [[0.0, 0.0, 0.0]]})
     with pytest.raises(TypeError, match="loopzoo module"):
         StreamRunner(torch.nn.Linear(3, 2))
 
