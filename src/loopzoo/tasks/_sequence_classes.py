@@ -81,7 +81,8 @@ class SequenceClassTask(ClassificationTask):
         steps = train.x.shape[1]
         train_x, train_labels = self._flat(train, steps)
         test_x, _ = self._flat(test, steps)
-        # One BLAS thread: on small shared CPUs a threaded BLAS made this fit ~100x slower.
+        # One BLAS thread: threaded BLAS on busy shared cores slows this fit badly
+        # (benchmarks/RESULTS.md, "Task baselines").
         with threadpool_limits(limits=1):
             model = LogisticRegression(max_iter=5000).fit(train_x, train_labels)
         log_probs = np.full((len(test), self.output_size), IMPOSSIBLE_LOGIT)

@@ -178,12 +178,10 @@ class SeriesTask(RegressionTask):
     def _ar_params(self, order: int) -> list[np.ndarray]:
         """statsmodels AutoReg (constant + ``order`` lags) per target, fitted on the train part."""
         from statsmodels.tsa.ar_model import AutoReg
-        from threadpoolctl import threadpool_limits
 
         start, end = self._bounds["train"]
-        with threadpool_limits(limits=1):  # threaded BLAS is far slower on small shared CPUs
-            return [np.asarray(AutoReg(self.data.values[start:end, c], lags=order, trend="c")
-                               .fit().params) for c in self.data.targets]
+        return [np.asarray(AutoReg(self.data.values[start:end, c], lags=order, trend="c")
+                           .fit().params) for c in self.data.targets]
 
     def _ar_forecast(self, context: np.ndarray, order: int) -> np.ndarray:
         """(N, T, targets) windows -> (N, channels) iterated AR forecasts at the horizons."""
