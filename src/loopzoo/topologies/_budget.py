@@ -15,7 +15,7 @@ def parameter_count(name: str, **sizes_and_options: Any) -> int:
     """Trainable parameters of ``create(name, **sizes_and_options)``, built on the meta device.
 
     >>> parameter_count("hidden-feedback", input_size=1, output_size=1, hidden_size=2)
-    13
+    11
     """
     builder = TOPOLOGIES.get(name)
     with torch.device("meta"):  # shapes only: no memory, no initialisation cost
