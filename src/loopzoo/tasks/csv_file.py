@@ -83,8 +83,10 @@ class CsvForecastOptions(SeriesOptions):
 
 @TASKS.register("csv")
 class CsvForecastTask(SeriesTask):
-    """Forecast the ``target`` columns of a CSV file (see ``SeriesTask`` for windows, parts,
-    scaling and baselines). Rows are ordered by ``time`` if given; no cell may be missing.
+    """Forecast the target column(s) of your CSV file from a window of past rows.
+
+    See ``SeriesTask`` for windows, parts, scaling and baselines. Rows are ordered by ``time``
+    if given; no cell may be missing.
 
     Example:
         >>> loopzoo.tasks.create("csv", path="load.csv", target="kw", time="hour", window=48)

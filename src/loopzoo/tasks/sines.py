@@ -51,8 +51,9 @@ class SinesOptions(SplitSizes):
 
 @TASKS.register("sines")
 class SinesTask(RegressionTask):
-    """Forecast v_{t+h} for each horizon h from v_0..v_t, where
+    """Forecast a noisy mixture of sinusoids at several horizons.
 
+    From v_0..v_t predict v_{t+h} for each horizon h, where
     v_t = sum_k a_k sin(2 pi t / P_k + phi_k) + eps_t,  phi_k ~ U[0, 2 pi) per sequence,
     eps_t ~ N(0, noise^2). Every step is scored. Shapes: x (N, T, 1), y (N, T, len(horizons)).
     Baselines "persistence" (v_t for every horizon) and "optimal": the noise-free signal, whose
