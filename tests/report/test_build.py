@@ -82,6 +82,8 @@ def test_markdown_names_statistics_alpha_and_skips(built_demo):
     assert "Student-t" in markdown
     assert "records/torn.json: not valid JSON" in markdown
     assert "## Verdicts" in markdown and "Pick stacked" in markdown
+    # No demo task has a baseline on top, so the extra comparison column stays out.
+    assert "vs best topology" not in markdown
 
 
 def test_main_prints_tables_and_html_path(demo_dir, capsys):

@@ -21,6 +21,7 @@ from loopzoo.report.summary import (
     LATENCY_FIELD,
     REACH_FACTORS,
     REACH_PHASES,
+    Comparison,
     Row,
     Summary,
     TaskSummary,
@@ -44,7 +45,9 @@ def _reading_guide(summary: Summary) -> Bullets:
         "are counted, not averaged in.",
         f"'vs best' is Welch's two-sided t-test (unequal variances) against the rank-1 row at "
         f"alpha = {summary.alpha:g}: 'tie' means the difference is within seed noise; 'untested' "
-        "means a side has fewer than 2 usable seeds.",
+        "means a side has fewer than 2 usable seeds. With few seeds the test has little power: "
+        "a tie is no proof of equal quality, so the verdicts call a tie close only when the "
+        "row's mean lies inside the winner's interval.",
         "Output-feedback rows selected on free running are ranked on their free-running test "
         "metric (feeding back their own outputs); the exposure-bias table shows both figures.",
         "Rank 1 is best; equal means share a rank. Classical baselines are ranked with the "
@@ -57,8 +60,7 @@ def _reading_guide(summary: Summary) -> Bullets:
     ))
 
 
-def _versus_best(row: Row) -> str:
-    comparison = row.versus_best
+def _versus(comparison: Comparison) -> str:
     if comparison.verdict in ("indistinguishable", "worse"):
         word = "tie" if comparison.verdict == "indistinguishable" else "worse"
         return f"{word} (p {fmt.p_value(comparison.p_value)})"
@@ -70,6 +72,8 @@ def _yes_no(flag: bool | None) -> str:
 
 
 def _quality_table(task: TaskSummary) -> Table:
+    # When a classical baseline is best, also show how topologies stand against the best topology.
+    baseline_best = task.best is not None and task.best.kind == "baseline"
     rows = tuple(
         (
             row.label,
@@ -81,18 +85,21 @@ def _quality_table(task: TaskSummary) -> Table:
             str(row.counts["failed"]),
             str(row.counts["missing"]),
             fmt.number(row.rank) if row.rank else fmt.MISSING,
-            _versus_best(row),
+            _versus(row.versus_best),
+            *((_versus(row.versus_pick) if row.kind == "model" else "",) if baseline_best else ()),
             _yes_no(row.front_latency),
         )
         for row in task.rows
     )
     direction = "lower" if task.goal == "min" else "higher"
+    headers = ("row", "kind", "params", f"test {task.metric} (mean ± 95% CI)", "seeds used",
+               "diverged", "failed", "ok, no metric", "rank", "vs best",
+               *(("vs best topology",) if baseline_best else ()), "Pareto (latency)")
     return Table(
         f"Quality on {task.label}: test {task.metric} ({direction} is better)",
-        ("row", "kind", "params", f"test {task.metric} (mean ± 95% CI)", "seeds used", "diverged",
-         "failed", "ok, no metric", "rank", "vs best", "Pareto (latency)"),
+        headers,
         rows,
-        (False, False, True, True, True, True, True, True, True, False, False),
+        (False, False, True, True, True, True, True, True, True) + (False,) * (len(headers) - 9),
     )
 
 
@@ -188,9 +195,11 @@ def _overall_section(summary: Summary, figure: Figure | None) -> list[Block]:
         (False, True, True, True, False),
     ))
     blocks.append(Paragraph(
-        "Mean rank is taken among topologies only, per task. The latency ratio divides each "
-        "topology's streaming-step latency by the fastest topology's on the same task; the front "
-        "holds topologies that no other beats on both mean rank and latency ratio.",
+        "Mean rank is taken among topologies only, per task, over the tasks where at least two "
+        "topologies have results ('tasks ranked'); compare rows with equal counts. The latency "
+        "ratio divides each topology's streaming-step latency by the fastest topology's on the "
+        "same task; the front holds topologies that no other beats on both mean rank and "
+        "latency ratio.",
         note=True,
     ))
     if figure is not None:

@@ -6,7 +6,7 @@ import math
 
 from loopzoo.report.stats import Interval
 
-__all__ = ["MISSING", "number", "interval", "lag", "p_value", "ratio"]
+__all__ = ["MISSING", "number", "interval", "lag", "p_phrase", "p_value", "ratio"]
 
 MISSING = "—"
 
@@ -44,6 +44,13 @@ def p_value(value: float | None) -> str:
     if value is None:
         return MISSING
     return "<0.001" if value < 0.001 else f"{value:.2g}"
+
+
+def p_phrase(value: float | None) -> str:
+    """``'p = 0.03'`` or ``'p < 0.001'`` for running text."""
+    if value is None:
+        return "p unknown"
+    return "p < 0.001" if value < 0.001 else f"p = {value:.2g}"
 
 
 def ratio(value: float | None) -> str:

@@ -111,7 +111,8 @@ class TaskSummary:
 @dataclass(frozen=True)
 class OverallRow:
     """A topology across tasks: mean rank among topologies, geometric-mean latency ratio to the
-    fastest topology of each task, and whether it is on the (ratio, mean rank) Pareto front."""
+    fastest topology of each task, and whether it is on the (ratio, mean rank) Pareto front.
+    Only tasks where at least two topologies have results count."""
 
     label: str
     tasks_ranked: int
@@ -429,6 +430,9 @@ def _overall(tasks: Sequence[TaskSummary]) -> tuple[OverallRow, ...]:
     for task in tasks:
         model_rows = [r for r in task.rows if r.kind == "model"]
         labels.update(r.label for r in model_rows)
+        model_rows = [r for r in model_rows if r.interval]
+        if len(model_rows) < 2:
+            continue  # a task with one topology ranks nothing and has no fastest to compare with
         for key, rank in _competition_ranks(model_rows, task.goal).items():
             ranks[key[1]].append(rank)
         latencies = {r.label: r.cost.get(LATENCY_FIELD) for r in model_rows}

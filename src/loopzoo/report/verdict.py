@@ -24,6 +24,13 @@ def _quality(row: Row, task: TaskSummary, seeds: bool = True) -> str:
     return f"{text} over {row.interval.n} seeds" if seeds and row.interval.n > 1 else text
 
 
+def _inside(row: Row, pick: Row) -> bool:
+    interval = pick.interval
+    if row.interval is None or interval is None or interval.low is None or interval.high is None:
+        return False
+    return interval.low <= row.interval.mean <= interval.high
+
+
 def _pick_sentence(pick: Row, task: TaskSummary, alpha: float) -> list[str]:
     direction = "lower" if task.goal == "min" else "higher"
     sentences = [f"Pick {pick.label}: {_quality(pick, task)} ({direction} is better)."]
@@ -31,21 +38,34 @@ def _pick_sentence(pick: Row, task: TaskSummary, alpha: float) -> list[str]:
     same = [r for r in topologies if r.versus_pick.verdict == "indistinguishable"]
     worse = [r for r in topologies if r.versus_pick.verdict == "worse"]
     untested = [r for r in topologies if r.versus_pick.verdict == "untested"]
-    if same:
-        verb = "is" if len(same) == 1 else "are"
+    # A tie only counts as "as good" when the tied row's mean lies inside the pick's interval;
+    # otherwise Welch failed to separate them because the tied row's seeds spread widely.
+    close = [r for r in same if _inside(r, pick)]
+    loose = [r for r in same if not _inside(r, pick)]
+    if close:
+        verb = "is" if len(close) == 1 else "are"
         sentences.append(
-            f"{_names(same)} {verb} statistically indistinguishable from it "
-            f"(Welch p ≥ {alpha:g}), so the ranking among them is seed noise."
+            f"{_names(close)} {verb} statistically indistinguishable from it "
+            f"(Welch p ≥ {alpha:g}, mean inside its interval), so the ranking among them is "
+            "seed noise."
         )
         mine = _latency(pick)
-        faster = [r for r in same if mine and _latency(r) and _latency(r) < mine]
+        faster = [r for r in close if mine and _latency(r) and _latency(r) < mine]
         if faster:
             cheapest = min(faster, key=lambda r: (_latency(r), r.label))
             sentences.append(
                 f"When latency matters take {cheapest.label}: as good within noise and "
                 f"{fmt.ratio(_latency(pick) / _latency(cheapest))} faster per streaming step."
             )
-    elif worse and not untested:
+    if loose:
+        example = loose[0]
+        sentences.append(
+            f"{_names(loose)} {'is' if len(loose) == 1 else 'are'} not significantly different "
+            f"either, but only because {'its' if len(loose) == 1 else 'their'} seeds vary widely "
+            f"(e.g. {example.label}: {_quality(example, task, seeds=False)}); that is no "
+            "evidence of being as good."
+        )
+    if worse and not same and not untested:
         sentences.append(f"It is significantly better than every other topology (p < {alpha:g}).")
     if untested:
         sentences.append(
@@ -85,8 +105,8 @@ def _baseline_sentence(pick: Row, task: TaskSummary, alpha: float) -> str | None
     if test is not None and test.p_value >= alpha:
         return (
             f"It is statistically indistinguishable from the best classical baseline, "
-            f"{best.label} ({_quality(best, task, seeds=False)}; Welch p = "
-            f"{fmt.p_value(test.p_value)}): the best topology did not measurably beat it."
+            f"{best.label} ({_quality(best, task, seeds=False)}; Welch "
+            f"{fmt.p_phrase(test.p_value)}): the best topology did not measurably beat it."
         )
     relation = "beats" if (pick.rank or 0) < (best.rank or 0) else "does not beat"
     return f"It {relation} the best classical baseline, {quality}."
@@ -127,16 +147,22 @@ def task_verdict(task: TaskSummary, alpha: float) -> list[str]:
     sentences = []
     best = task.best
     if best is not None and best.kind == "baseline" and best.key != pick.key:
-        verdict = pick.versus_best.verdict
-        tie = " (within noise of it)" if verdict == "indistinguishable" else ""
+        comparison = pick.versus_best
+        relation = {
+            "indistinguishable": "the best topology is within noise of it "
+            f"(Welch {fmt.p_phrase(comparison.p_value)})",
+            "worse": "it is significantly better than the best topology "
+            f"(Welch {fmt.p_phrase(comparison.p_value)})",
+        }.get(comparison.verdict, "no topology beat it")
         sentences.append(
-            f"The classical baseline {best.label} is best ({_quality(best, task)}); "
-            f"no topology beat it{tie}."
+            f"The classical baseline {best.label} has the best mean ({_quality(best, task)}); "
+            f"{relation}."
         )
     sentences.extend(_pick_sentence(pick, task, alpha))
+    baseline_best = best is not None and best.kind == "baseline" and best.key != pick.key
     extras = (
         _cost_sentence(pick, task),
-        _baseline_sentence(pick, task, alpha),
+        None if baseline_best else _baseline_sentence(pick, task, alpha),
         _exposure_sentence(pick, task),
         _health_sentence(pick),
     )
