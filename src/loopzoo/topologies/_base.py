@@ -25,6 +25,7 @@ __all__ = [
     "batch_first",
     "check_finite",
     "hold",
+    "make_readout",
     "project_time_major",
     "register",
     "scan",
@@ -52,6 +53,19 @@ def uniform_init(module: nn.Module, hidden_size: int) -> None:
     bound = 1.0 / math.sqrt(hidden_size)
     for parameter in module.parameters():
         nn.init.uniform_(parameter, -bound, bound)
+
+
+def make_readout(
+    hidden_size: int, output_size: int, *, depth: int = 1, nonlinearity: str = "tanh"
+) -> nn.Module:
+    """The readout y = V h + c (an nn.Linear), or with depth > 1 an MLP whose depth - 1 hidden
+    layers have width hidden_size (the deep output of Pascanu et al. 2014)."""
+    activation = nn.ReLU if nonlinearity == "relu" else nn.Tanh
+    layers: list[nn.Module] = []
+    for _ in range(depth - 1):
+        layers += [nn.Linear(hidden_size, hidden_size), activation()]
+    final = nn.Linear(hidden_size, output_size)
+    return nn.Sequential(*layers, final) if layers else final
 
 
 def project_time_major(
@@ -240,16 +254,18 @@ class RecurrentTopology(nn.Module):
         return next(self.parameters())
 
     def _check_input(self, name: str, value: Any, shape: tuple[int | str, ...]) -> Tensor:
-        expected = _shape(shape)
+        # Messages are built only on failure: step() runs these checks on every call.
         if not isinstance(value, Tensor):
-            raise TypeError(f"{name} must be a torch.Tensor of shape {expected}, got "
+            raise TypeError(f"{name} must be a torch.Tensor of shape {_shape(shape)}, got "
                             f"{type(value).__name__}")
         if value.dim() != len(shape):
-            raise ValueError(f"{name} must have shape {expected}, got shape {tuple(value.shape)}")
+            raise ValueError(
+                f"{name} must have shape {_shape(shape)}, got shape {tuple(value.shape)}"
+            )
         if value.shape[-1] != shape[-1]:
             raise ValueError(
                 f"{name} has {value.shape[-1]} features in its last dimension but the model's "
-                f"input_size is {self.input_size}; expected shape {expected}"
+                f"input_size is {self.input_size}; expected shape {_shape(shape)}"
             )
         self._check_dtype(name, value)
         return value
@@ -302,11 +318,11 @@ class RecurrentTopology(nn.Module):
         if state is None:
             return self.init_state(batch)
         sizes = self.state_sizes()
-        expected = ", ".join(_shape((batch, n)) for n in sizes)
         if not isinstance(state, (tuple, list)) or len(state) != len(sizes):
             got = f"{len(state)} item(s)" if isinstance(state, (tuple, list)) else (
                 type(state).__name__
             )
+            expected = ", ".join(_shape((batch, n)) for n in sizes)
             raise ValueError(
                 f"state for {self.topology!r} must be a tuple of {len(sizes)} tensor(s) shaped "
                 f"{expected}, got {got}"

@@ -24,6 +24,7 @@ from loopzoo.topologies._base import (
     RecurrentTopology,
     State,
     batch_first,
+    make_readout,
     project_time_major,
     register,
     scan,
@@ -73,11 +74,10 @@ class DeepTransition(RecurrentTopology):
         self.bias = nn.Parameter(torch.empty(hidden))
         self.transition = nn.ModuleList(nn.Linear(hidden, hidden) for _ in range(depth - 1))
         self.weight_shortcut = nn.Parameter(torch.empty(hidden, hidden)) if shortcut else None
-        activation_layer = nn.ReLU if self.options["nonlinearity"] == "relu" else nn.Tanh
-        deep_output: list[nn.Module] = []
-        for _ in range(self.options["output_depth"] - 1):
-            deep_output += [nn.Linear(hidden, hidden), activation_layer()]
-        self.readout = nn.Sequential(*deep_output, nn.Linear(hidden, self.output_size))
+        self.readout = make_readout(
+            hidden, self.output_size, depth=self.options["output_depth"],
+            nonlinearity=self.options["nonlinearity"],
+        )
         uniform_init(self, hidden)
 
     def state_sizes(self) -> tuple[int, ...]:
@@ -100,7 +100,14 @@ class DeepTransition(RecurrentTopology):
             z = self.activation(pre)
         return z
 
-    def _sequence(self, x, state, valid, targets, teacher_forcing) -> tuple[Tensor, State]:
+    def _sequence(
+        self,
+        x: Tensor,
+        state: State,
+        valid: Tensor | None,
+        targets: Tensor | None,
+        teacher_forcing: float,
+    ) -> tuple[Tensor, State]:
         def cell(u_t: Tensor, carried: State) -> tuple[Tensor, State]:
             h = self._transition(u_t, carried[0])
             return h, (h,)

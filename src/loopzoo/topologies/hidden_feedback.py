@@ -10,12 +10,13 @@ from __future__ import annotations
 
 from typing import Any
 
-from torch import Tensor, nn
+from torch import Tensor
 
 from loopzoo.topologies._base import (
     RecurrentTopology,
     State,
     batch_first,
+    make_readout,
     register,
     time_major_mask,
     uniform_init,
@@ -46,13 +47,20 @@ class HiddenFeedback(RecurrentTopology):
         self.cell = AdditiveRecurrence(
             self.input_size, self.hidden_size, nonlinearity=self.options["nonlinearity"]
         )
-        self.readout = nn.Linear(self.hidden_size, self.output_size)
+        self.readout = make_readout(self.hidden_size, self.output_size)
         uniform_init(self, self.hidden_size)
 
     def state_sizes(self) -> tuple[int, ...]:
         return (self.hidden_size,)
 
-    def _sequence(self, x, state, valid, targets, teacher_forcing) -> tuple[Tensor, State]:
+    def _sequence(
+        self,
+        x: Tensor,
+        state: State,
+        valid: Tensor | None,
+        targets: Tensor | None,
+        teacher_forcing: float,
+    ) -> tuple[Tensor, State]:
         hs, final = self.cell.sequence(x.transpose(0, 1), state[0], time_major_mask(valid))
         return batch_first(self.readout(hs)), (final,)  # hs: (T, B, H)
 

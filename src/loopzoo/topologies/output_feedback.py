@@ -27,6 +27,7 @@ from loopzoo.topologies._base import (
     State,
     batch_first,
     check_finite,
+    make_readout,
     project_time_major,
     register,
     scan,
@@ -82,7 +83,7 @@ class OutputFeedback(RecurrentTopology):
         self.weight_ih = nn.Parameter(torch.empty(self.hidden_size, self.input_size))
         self.weight_oh = nn.Parameter(torch.empty(self.hidden_size, self.output_size))
         self.bias = nn.Parameter(torch.empty(self.hidden_size))
-        self.readout = nn.Linear(self.hidden_size, self.output_size)
+        self.readout = make_readout(self.hidden_size, self.output_size)
         uniform_init(self, self.hidden_size)
 
     def state_sizes(self) -> tuple[int, ...]:
@@ -128,7 +129,14 @@ class OutputFeedback(RecurrentTopology):
         """y_t from u_t = U x_t + b (B, H) and the fed-back o_{t-1} (B, O)."""
         return self.readout(self.activation(torch.addmm(u_t, fed, self.weight_oh.t())))
 
-    def _sequence(self, x, state, valid, targets, teacher_forcing) -> tuple[Tensor, State]:
+    def _sequence(
+        self,
+        x: Tensor,
+        state: State,
+        valid: Tensor | None,
+        targets: Tensor | None,
+        teacher_forcing: float,
+    ) -> tuple[Tensor, State]:
         if teacher_forcing == 1.0:
             return self._teacher_forced(x, state, valid, targets)
         u = project_time_major(x, self.weight_ih, self.bias)  # (T, B, H)

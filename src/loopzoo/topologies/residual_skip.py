@@ -23,6 +23,7 @@ from loopzoo.topologies._base import (
     RecurrentTopology,
     State,
     batch_first,
+    make_readout,
     project_time_major,
     register,
     scan,
@@ -117,13 +118,20 @@ class ResidualSkip(RecurrentTopology):
             layer(self.input_size if k == 0 else self.hidden_size)
             for k in range(self.options["num_layers"])
         )
-        self.readout = nn.Linear(self.hidden_size, self.output_size)
+        self.readout = make_readout(self.hidden_size, self.output_size)
         uniform_init(self, self.hidden_size)
 
     def state_sizes(self) -> tuple[int, ...]:
         return (self.hidden_size,) * self.options["num_layers"]
 
-    def _sequence(self, x, state, valid, targets, teacher_forcing) -> tuple[Tensor, State]:
+    def _sequence(
+        self,
+        x: Tensor,
+        state: State,
+        valid: Tensor | None,
+        targets: Tensor | None,
+        teacher_forcing: float,
+    ) -> tuple[Tensor, State]:
         signal, valid_tm, finals = x.transpose(0, 1), time_major_mask(valid), []
         for k, layer in enumerate(self.layers):
             hs, final = layer.sequence(signal, state[k], valid_tm)  # (T, B, H), (B, H)

@@ -19,6 +19,7 @@ from loopzoo.topologies._base import (
     RecurrentTopology,
     State,
     batch_first,
+    make_readout,
     register,
     time_major_mask,
     uniform_init,
@@ -57,7 +58,7 @@ class Stacked(RecurrentTopology):
             )
             for k in range(layers)
         )
-        self.readout = nn.Linear(self.hidden_size, self.output_size)
+        self.readout = make_readout(self.hidden_size, self.output_size)
         uniform_init(self, self.hidden_size)
 
     def state_sizes(self) -> tuple[int, ...]:
@@ -68,7 +69,14 @@ class Stacked(RecurrentTopology):
             return signal
         return dropout(signal, self.options["dropout"], self.training)
 
-    def _sequence(self, x, state, valid, targets, teacher_forcing) -> tuple[Tensor, State]:
+    def _sequence(
+        self,
+        x: Tensor,
+        state: State,
+        valid: Tensor | None,
+        targets: Tensor | None,
+        teacher_forcing: float,
+    ) -> tuple[Tensor, State]:
         signal, valid_tm, finals = x.transpose(0, 1), time_major_mask(valid), []
         for k, layer in enumerate(self.layers):
             signal, final = layer.sequence(self._between_layers(signal, k), state[k], valid_tm)

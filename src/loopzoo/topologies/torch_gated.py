@@ -21,7 +21,13 @@ from torch import Tensor, nn
 from torch.nn.functional import dropout
 from torch.nn.utils.rnn import pack_padded_sequence, pad_packed_sequence
 
-from loopzoo.topologies._base import RecurrentTopology, State, register, uniform_init
+from loopzoo.topologies._base import (
+    RecurrentTopology,
+    State,
+    make_readout,
+    register,
+    uniform_init,
+)
 from loopzoo.topologies._options import DROPOUT, check_dropout_layers, num_layers
 
 __all__ = ["GRU", "LSTM"]
@@ -41,7 +47,7 @@ class _TorchGated(RecurrentTopology):
         self.rnn = self.layer_class(
             self.input_size, self.hidden_size, num_layers=layers, dropout=rate, batch_first=True
         )
-        self.readout = nn.Linear(self.hidden_size, self.output_size)
+        self.readout = make_readout(self.hidden_size, self.output_size)
         uniform_init(self, self.hidden_size)
 
     def state_sizes(self) -> tuple[int, ...]:
@@ -58,7 +64,14 @@ class _TorchGated(RecurrentTopology):
         parts = hx if isinstance(hx, tuple) else (hx,)
         return tuple(t for part in parts for t in part.unbind(0))
 
-    def _sequence(self, x, state, valid, targets, teacher_forcing) -> tuple[Tensor, State]:
+    def _sequence(
+        self,
+        x: Tensor,
+        state: State,
+        valid: Tensor | None,
+        targets: Tensor | None,
+        teacher_forcing: float,
+    ) -> tuple[Tensor, State]:
         hx = self._to_torch(state)
         if valid is None:
             out, final = self.rnn(x, hx)
