@@ -50,7 +50,7 @@ def _train(model, task, chunk, tmp_path: Path) -> SequenceModule:
     spans = len(chunk_spans(LENGTH, chunk))
     module.phase(end_step=STEPS * spans, patience=None)
     fit_quietly(module, training_loader(task.split("train"), 16, seed=5),
-                {"enable_progress_bar": False}, max_steps=STEPS * spans, run_dir=tmp_path)
+                {"enable_progress_bar": False}, run_dir=tmp_path)
     return module
 
 

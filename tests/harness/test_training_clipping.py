@@ -51,7 +51,7 @@ def test_a_clipped_sgd_step_moves_the_weights_by_the_clip_norm(tmp_path: Path):
     )
     module.phase(end_step=1, patience=None)
     fit_quietly(module, training_loader(task.split("train"), 32, seed=0),
-                {"enable_progress_bar": False}, max_steps=1, run_dir=tmp_path)
+                {"enable_progress_bar": False}, run_dir=tmp_path)
     after = torch.cat([p.detach().flatten() for p in model.parameters()])
     assert module.fit_state.step == 1 and module.fit_state.clipped_steps == 1
     # clip_grad_norm_ rescales the gradient to total norm `limit` (torch.nn.utils docs).

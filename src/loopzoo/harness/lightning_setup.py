@@ -40,11 +40,12 @@ class ReleaseProcessGroup(L.Callback):
 
 
 def fit_quietly(module: L.LightningModule, loader: Any, trainer_options: dict[str, Any], *,
-                max_steps: int, run_dir: Path) -> float:
-    """Fit ``module`` on ``loader`` for at most ``max_steps`` optimiser steps; wall seconds taken.
+                run_dir: Path) -> float:
+    """Fit ``module`` on ``loader`` until the module sets ``trainer.should_stop``; wall seconds.
 
-    ``trainer_options`` are Lightning Trainer keyword arguments passed through (accelerator,
-    devices, strategy, enable_progress_bar, ...).
+    The module counts its own optimiser steps and stops itself (the Trainer runs without a step
+    or epoch limit). ``trainer_options`` are Lightning Trainer keyword arguments passed through
+    (accelerator, devices, strategy, enable_progress_bar, ...).
     """
     for name in _CHATTY_LOGGERS:
         logging.getLogger(name).setLevel(logging.WARNING)
@@ -54,6 +55,10 @@ def fit_quietly(module: L.LightningModule, loader: Any, trainer_options: dict[st
         # Data lives in memory and batches are slices: worker processes would only add cost.
         warnings.filterwarnings("ignore", message=".*does not have many workers.*")
         warnings.filterwarnings("ignore", message=".*smaller than the logging interval.*")
-        trainer = L.Trainer(max_steps=max_steps, callbacks=[ReleaseProcessGroup()], **options)
+        warnings.filterwarnings("ignore", message=".*LeafSpec.*")
+        trainer = L.Trainer(max_steps=-1, **options)
+        if trainer.world_size > 1:
+            # Only then: every callback costs a call per hook per step.
+            trainer.callbacks.append(ReleaseProcessGroup())
         trainer.fit(module, train_dataloaders=loader)
     return time.perf_counter() - begin

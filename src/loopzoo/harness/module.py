@@ -107,6 +107,7 @@ class SequenceModule(L.LightningModule):
         self.end_step = 0
         self.patience: int | None = None
         self.handoff: Path | None = None
+        self.distributed = False
 
     def phase(self, *, end_step: int, patience: int | None, handoff: Path | None = None) -> None:
         """Set the next fit to train until ``end_step`` total steps, early stopping after
@@ -118,11 +119,21 @@ class SequenceModule(L.LightningModule):
         self.fit_state.stale_validations = 0
         self.fit_state.early_stopped = False
 
+    def on_fit_start(self) -> None:
+        self.distributed = self.trainer.world_size > 1
+
     def configure_optimizers(self) -> torch.optim.Optimizer:
         # Kept across fits so that continuing after the lr probe keeps the optimiser's moments.
         if self.optimizer is None:
             self.optimizer = self.make_optimizer(self.model.parameters())
         return self.optimizer
+
+    def transfer_batch_to_device(self, batch: Any, device: torch.device,
+                                 dataloader_idx: int) -> Any:
+        # Batches are already CPU tensors; skip Lightning's per-step walk over the collection.
+        if device.type == "cpu":
+            return batch
+        return super().transfer_batch_to_device(batch, device, dataloader_idx)
 
     def training_step(self, batch: tuple[torch.Tensor, ...], batch_idx: int) -> None:
         state = self.fit_state
@@ -130,7 +141,9 @@ class SequenceModule(L.LightningModule):
             self.trainer.should_stop = True
             return
         x, y, mask = batch
-        optimizer = self.optimizers()
+        # The raw optimiser: Lightning's wrapper adds hooks and profiler scopes per step that
+        # this engine does not use (it counts steps and stops by itself).
+        optimizer = self.configure_optimizers()
         teacher_forcing = self.plan.probability(state.step) if self.feeds_back else None
         carried = None
         for start, stop in chunk_spans(x.shape[1], self.tbptt_chunk):
@@ -164,7 +177,7 @@ class SequenceModule(L.LightningModule):
         norm = float(torch.nn.utils.clip_grad_norm_(self.model.parameters(), limit))
         # Under DDP the norm is of all-reduced gradients, so every rank decides alike; a rank's
         # own loss is checked only when there is no other rank to fall out of step with.
-        finite = math.isfinite(norm) and (self.trainer.world_size > 1 or bool(loss.isfinite()))
+        finite = math.isfinite(norm) and (self.distributed or math.isfinite(float(loss.detach())))
         if not finite:
             step = self.fit_state.step + 1
             self.fit_state.diverged_at = step

@@ -165,7 +165,7 @@ class _Run:
         module.phase(end_step=end_step, patience=patience,
                      handoff=self.run_dir / ".fit-handoff.pt")
         self.fit_seconds += fit_quietly(module, loader, self.settings.trainer,
-                                        max_steps=end_step - before, run_dir=self.run_dir)
+                                        run_dir=self.run_dir)
         module.take_handoff()
         self.total_steps += module.fit_state.step - before
         self.val_seconds += module.fit_state.val_seconds - val_before
@@ -301,6 +301,9 @@ def _train(run: _Run, body: dict[str, Any]) -> None:
         body.update(status="diverged", reason=f"{error} (after training, best weights)")
         return
     body["metrics"] = _metrics(val, test)
+    metadata = {"task": run.settings.task, "task_options": run.settings.task_options,
+                "seed": run.settings.seed, "metrics": body["metrics"]["test"]}
+    body["artifact"] = str(loopzoo.save(model, run.run_dir / "artifact", _finite(metadata)))
     batched = min(run.settings.batch_size, len(run.val.x))
     body["cost"].update(
         step_latency_ms=step_latency_ms(model, run.val.x[:1]),
