@@ -33,8 +33,9 @@ def _inside(row: Row, pick: Row) -> bool:
 
 def _pick_sentence(pick: Row, task: TaskSummary, alpha: float) -> list[str]:
     direction = "lower" if task.goal == "min" else "higher"
-    sentences = [f"Pick {pick.label}: {_quality(pick, task)} ({direction} is better)."]
     topologies = [r for r in task.rows if r.kind == "model" and r.key != pick.key and r.interval]
+    lead = f"Pick {pick.label}" if topologies else f"Only {pick.label} has results"
+    sentences = [f"{lead}: {_quality(pick, task)} ({direction} is better)."]
     same = [r for r in topologies if r.versus_pick.verdict == "indistinguishable"]
     worse = [r for r in topologies if r.versus_pick.verdict == "worse"]
     untested = [r for r in topologies if r.versus_pick.verdict == "untested"]
@@ -60,8 +61,9 @@ def _pick_sentence(pick: Row, task: TaskSummary, alpha: float) -> list[str]:
     if loose:
         example = loose[0]
         sentences.append(
-            f"{_names(loose)} {'is' if len(loose) == 1 else 'are'} not significantly different "
-            f"either, but only because {'its' if len(loose) == 1 else 'their'} seeds vary widely "
+            f"{_names(loose)} {'is' if len(loose) == 1 else 'are'} not significantly different"
+            f"{' either' if close else ''}, but only because "
+            f"{'its' if len(loose) == 1 else 'their'} seeds vary widely "
             f"(e.g. {example.label}: {_quality(example, task, seeds=False)}); that is no "
             "evidence of being as good."
         )
