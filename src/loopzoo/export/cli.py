@@ -20,14 +20,12 @@ import torch
 from loopzoo import _io
 from loopzoo.artifacts import ArtifactError, load
 from loopzoo.export.graphs import graph_spec, graphs_for
-from loopzoo.export.parity import max_error, runner_for
+from loopzoo.export.parity import CHECK_BATCH_SIZES, CHECK_LENGTHS, max_error, runner_for
 from loopzoo.export.writers import FORMATS, SUFFIXES, export_bytes
 
-__all__ = ["main", "MANIFEST_FILE", "CHECK_BATCH_SIZES", "CHECK_LENGTHS"]
+__all__ = ["main", "MANIFEST_FILE"]
 
 MANIFEST_FILE = "export.json"
-CHECK_BATCH_SIZES = (1, 3, 8)
-CHECK_LENGTHS = (1, 2, 5, 13)
 _DEFAULT_TOLERANCE = 1e-5  # float32 parity target of the export issue
 
 

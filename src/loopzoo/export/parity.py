@@ -17,7 +17,19 @@ import torch
 from loopzoo._registry import unknown_choice
 from loopzoo.export.graphs import graphs_for
 
-__all__ = ["Runner", "max_error", "onnx_runner", "program_runner", "runner_for"]
+__all__ = [
+    "CHECK_BATCH_SIZES",
+    "CHECK_LENGTHS",
+    "Runner",
+    "max_error",
+    "onnx_runner",
+    "program_runner",
+    "runner_for",
+]
+
+# Length 2 is in on purpose: torch.export has been seen to guard on it (DEVELOPERS.md).
+CHECK_BATCH_SIZES = (1, 3, 8)
+CHECK_LENGTHS = (1, 2, 5, 13)
 
 # Calls a graph on its inputs in order (x_t / x, [targets], state_0, ...) and returns its outputs.
 Runner = Callable[[Sequence[torch.Tensor]], list[torch.Tensor]]
@@ -73,8 +85,8 @@ def max_error(
     model: torch.nn.Module,
     graph: str,
     runner: Runner,
-    batch_sizes: Sequence[int] = (1, 3, 8),
-    lengths: Sequence[int] = (1, 4, 13),
+    batch_sizes: Sequence[int] = CHECK_BATCH_SIZES,
+    lengths: Sequence[int] = CHECK_LENGTHS,
     seed: int = 0,
 ) -> float:
     """Largest |exported - eager| over outputs and final states, for every (batch, length) pair.
