@@ -16,7 +16,7 @@ import torch
 from torch import Tensor, nn
 
 from loopzoo._registry import Registry
-from loopzoo.topologies._options import Option, resolve_options, size
+from loopzoo.topologies._options import Option, is_real, resolve_options, size
 
 __all__ = [
     "TOPOLOGIES",
@@ -309,8 +309,7 @@ class RecurrentTopology(nn.Module):
     def _check_teacher_forcing(value: Any, targets: Tensor | None) -> float:
         if value is None:
             return 1.0 if targets is not None else 0.0
-        ok = isinstance(value, (int, float)) and not isinstance(value, bool)
-        if not ok or not (0.0 <= value <= 1.0):
+        if not is_real(value) or not (0.0 <= value <= 1.0):
             raise ValueError(f"teacher_forcing must be a number in [0, 1] (or None), got {value!r}")
         return float(value)
 

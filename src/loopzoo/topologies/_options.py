@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import math
+import numbers
 from collections.abc import Callable, Mapping
 from dataclasses import dataclass
 from typing import Any
@@ -14,6 +15,7 @@ __all__ = [
     "boolean",
     "choice",
     "integer",
+    "is_real",
     "real",
     "resolve_options",
     "check_dropout_layers",
@@ -34,7 +36,12 @@ class Option:
 
 
 def _is_int(value: Any) -> bool:
-    return isinstance(value, int) and not isinstance(value, bool)
+    return isinstance(value, numbers.Integral) and not isinstance(value, bool)
+
+
+def is_real(value: Any) -> bool:
+    """A real number (Python or NumPy), not a bool."""
+    return isinstance(value, numbers.Real) and not isinstance(value, bool)
 
 
 def integer(minimum: int, maximum: int | None = None) -> Check:
@@ -56,7 +63,7 @@ def real(low: float, high: float, *, low_open: bool = False, high_open: bool = F
     interval = f"{'(' if low_open else '['}{low}, {high}{')' if high_open else ']'}"
 
     def check(name: str, value: Any) -> float:
-        ok = (_is_int(value) or isinstance(value, float)) and math.isfinite(value)
+        ok = is_real(value) and math.isfinite(value)
         if ok:
             above = value > low if low_open else value >= low
             below = value < high if high_open else value <= high
