@@ -232,6 +232,8 @@ def _gradient_by_lag(task: TaskSummary, styles: dict[str, Style]) -> Figure | No
     curves = {(r.label, phase): _median_norms(r, phase) for r in rows for phase, _ in phases}
     if not any(curves.values()):
         return None
+    # Norms can grow with the lag (an exploding gradient); keep those in view too.
+    top = max([2.0] + [1.5 * v for points in curves.values() for _, v in points])
     with _figure(9.0, 4.0, 2) as (figure, panels):
         for axes, (phase, title) in zip(panels, phases, strict=True):
             for row in rows:
@@ -248,7 +250,7 @@ def _gradient_by_lag(task: TaskSummary, styles: dict[str, Style]) -> Figure | No
                               xytext=(-3, 2), textcoords="offset points", fontsize=7)
             axes.set_yscale("log")
             # The thresholds matter, not how far below them a norm falls: cut the axis there.
-            axes.set_ylim(_REACH_FLOOR, 2.0)
+            axes.set_ylim(_REACH_FLOOR, top)
             axes.set_xlabel("time lag (steps back from the loss)")
             axes.set_ylabel("‖dL/dh‖ relative to lag 0 (log scale, cut at 1e-4)")
             axes.set_title(title)
