@@ -68,7 +68,8 @@ def styles_for(summary: Summary) -> dict[str, Style]:
 @contextmanager
 def _figure(width: float, height: float, panels: int) -> Iterator[tuple[MplFigure, list[Axes]]]:
     with matplotlib.rc_context(_RC):
-        # Fixed margins: constrained layout doubled the drawing time for no visible gain here.
+        # Fixed margins rather than constrained layout: cheaper to draw, see
+        # benchmarks/bench_report.py; these pictures have a known, simple layout.
         figure = MplFigure(figsize=(width, height))
         figure.subplots_adjust(left=0.09, right=0.98, bottom=0.13, top=0.85, wspace=0.3)
         FigureCanvasAgg(figure)
