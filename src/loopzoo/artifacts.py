@@ -81,6 +81,9 @@ def save(
         )
     if metadata is not None and not isinstance(metadata, Mapping):
         raise TypeError(f"metadata must be a dict or None, got {type(metadata).__name__}")
+    target = Path(directory)
+    if target.exists() and not target.is_dir():
+        raise ValueError(f"artifact directory {str(target)!r} is an existing file")
     tensors = _state_tensors(model)
     description = {
         "format": ARTIFACT_FORMAT,
@@ -96,7 +99,6 @@ def save(
     }
     weights = safetensors_save(tensors)
     description["weights_sha256"] = hashlib.sha256(weights).hexdigest()
-    target = Path(directory)
     _io.atomic_write_bytes(target / WEIGHTS_FILE, weights)
     _io.atomic_write_json(target / DESCRIPTION_FILE, description)
     return target

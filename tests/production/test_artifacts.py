@@ -199,6 +199,9 @@ def test_save_refuses_what_it_cannot_write_faithfully(build, tmp_path):
     with pytest.raises(ValueError, match="NaN or infinite"):
         loopzoo.save(model, tmp_path / "e")
     assert not any(tmp_path.iterdir()), "a refused save leaves no files behind"
+    (tmp_path / "taken").write_text("")
+    with pytest.raises(ValueError, match="is an existing file"):
+        loopzoo.save(build("gru"), tmp_path / "taken")
 
 
 def test_a_harness_style_checkpoint_loads_through_weights_only(build, train_briefly, tmp_path):
