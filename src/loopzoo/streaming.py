@@ -32,7 +32,8 @@ class StreamRunner:
 
     For every stream, pushing x_1, x_2, ... returns the same y_t as ``model(x)[0][0, t]`` on the
     whole sequence (up to float rounding), because both run the same recurrence from
-    ``model.init_state``. Samples are (input_size,) vectors; outputs are (output_size,) tensors.
+    ``model.init_state``. Samples are (input_size,) vectors; outputs are (output_size,)
+    inference-mode tensors. The runner puts ``model`` in eval mode.
 
     Example::
 
