@@ -189,3 +189,18 @@ def test_non_feedback_topologies_ignore_targets(name: str) -> None:
     y, _ = model(x)
     y_t, _ = model(x, targets=torch.randn(2, 4, 2), teacher_forcing=0.3)
     torch.testing.assert_close(y_t, y)
+
+
+@pytest.mark.parametrize("name", NAMES)
+def test_deepcopy_and_pickle_give_the_same_model(name: str) -> None:
+    """Trainers and checkpoint code copy and pickle modules; the copies must compute the same."""
+    import copy
+    import pickle
+
+    torch.manual_seed(0)
+    model = loopzoo.create(name, input_size=3, output_size=2, hidden_size=4)
+    x = torch.randn(2, 5, 3)
+    y, _ = model(x)
+    for twin in (copy.deepcopy(model), pickle.loads(pickle.dumps(model))):
+        assert twin.topology == name and twin.options == model.options
+        torch.testing.assert_close(twin(x)[0], y, rtol=0, atol=0)
