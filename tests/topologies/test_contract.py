@@ -6,6 +6,9 @@ differences are tolerated.
 
 from __future__ import annotations
 
+import copy
+import pickle
+
 import pytest
 import torch
 from hypothesis import HealthCheck, given, settings
@@ -194,9 +197,6 @@ def test_non_feedback_topologies_ignore_targets(name: str) -> None:
 @pytest.mark.parametrize("name", NAMES)
 def test_deepcopy_and_pickle_give_the_same_model(name: str) -> None:
     """Trainers and checkpoint code copy and pickle modules; the copies must compute the same."""
-    import copy
-    import pickle
-
     torch.manual_seed(0)
     model = loopzoo.create(name, input_size=3, output_size=2, hidden_size=4)
     x = torch.randn(2, 5, 3)
