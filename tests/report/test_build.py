@@ -53,10 +53,12 @@ def test_csv_has_one_line_per_row(built_demo):
     csv_path = built_demo / "report.csv"
     lines = list(csv.DictReader(io.StringIO(csv_path.read_text())))
     assert tuple(lines[0]) == CSV_COLUMNS
+    # Every line has exactly one value per column (DictReader puts extras under None).
+    assert all(None not in line and None not in line.values() for line in lines)
     # Demo: 6 pump rows, 5 valve rows, 3 flaky rows.
     assert len(lines) == 14
     best = next(r for r in lines if r["task"] == "pump-vibration" and r["rank"] == "1")
-    assert best["row"] == "stacked" and best["vs_best"] == "best"
+    assert best["row"] == "stacked" and best["vs_best"] == "best" and best["n"] == "4"
     assert float(best["ci95_low"]) < float(best["mean"]) < float(best["ci95_high"])
 
 

@@ -80,7 +80,7 @@ def _quality_table(task: TaskSummary) -> Table:
             "topology" if row.kind == "model" else "baseline",
             row.params,
             fmt.interval(row.interval),
-            str(row.counts["ok"] - row.counts["missing"]),
+            str(row.counts["ok"]),
             str(row.counts["diverged"]),
             str(row.counts["failed"]),
             str(row.counts["missing"]),
@@ -92,8 +92,8 @@ def _quality_table(task: TaskSummary) -> Table:
         for row in task.rows
     )
     direction = "lower" if task.goal == "min" else "higher"
-    headers = ("row", "kind", "params", f"test {task.metric} (mean ± 95% CI)", "seeds used",
-               "diverged", "failed", "ok, no metric", "rank", "vs best",
+    headers = ("row", "kind", "params", f"test {task.metric} (mean ± 95% CI)", "ok",
+               "diverged", "failed", "ok without metric", "rank", "vs best",
                *(("vs best topology",) if baseline_best else ()), "Pareto (latency)")
     return Table(
         f"Quality on {task.label}: test {task.metric} ({direction} is better)",

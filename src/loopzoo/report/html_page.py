@@ -16,6 +16,7 @@ body { font-family: system-ui, sans-serif; max-width: 70rem; margin: 2rem auto; 
 h1 { border-bottom: 2px solid #1a1a1a; padding-bottom: .3rem; }
 h2 { margin-top: 2.5rem; border-bottom: 1px solid #999; }
 h3 { margin-top: 1.6rem; }
+div.wide { overflow-x: auto; }
 table { border-collapse: collapse; margin: .6rem 0 1.2rem; font-size: .9rem; }
 caption { text-align: left; font-weight: 600; padding-bottom: .3rem; }
 th, td { border: 1px solid #bbb; padding: .25rem .5rem; vertical-align: top; }
@@ -42,7 +43,10 @@ def _table(table: Table) -> str:
         for row in table.rows
     )
     caption = f"<caption>{escape(table.caption)}</caption>" if table.caption else ""
-    return f"<table>{caption}\n<thead><tr>{head}</tr></thead>\n<tbody>\n{body}\n</tbody></table>"
+    return (
+        f'<div class="wide"><table>{caption}\n<thead><tr>{head}</tr></thead>\n'
+        f"<tbody>\n{body}\n</tbody></table></div>"
+    )
 
 
 def _figure(figure: Figure) -> str:

@@ -132,7 +132,7 @@ def _health_sentence(pick: Row) -> str | None:
     bad = pick.counts["diverged"] + pick.counts["failed"] + pick.counts["missing"]
     if not bad:
         return None
-    total = sum(pick.counts.values())
+    total = pick.counts["ok"] + pick.counts["diverged"] + pick.counts["failed"]
     return (
         f"Caution: {bad} of its {total} runs gave no usable result "
         f"({pick.counts['diverged']} diverged, {pick.counts['failed']} failed, "
