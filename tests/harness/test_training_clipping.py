@@ -44,7 +44,7 @@ def test_a_clipped_sgd_step_moves_the_weights_by_the_clip_norm(tmp_path: Path):
     before = torch.cat([p.detach().flatten().clone() for p in model.parameters()])
     limit = 1e-3
     module = SequenceModule(
-        model, task, SplitScorer(task, task.split("val"), feeds_back=False),
+        model, task, SplitScorer(task, task.split("val"), feeds_back=False), batch_size=32,
         optimizer=functools.partial(torch.optim.SGD, lr=1.0), grad_clip_norm=limit,
         plan=TeacherForcingPlan("teacher_forcing"), tbptt_chunk=None, val_every=100,
         primary="mse", goal="min", select_group="plain",

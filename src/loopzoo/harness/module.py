@@ -59,18 +59,21 @@ class FitState:
 class SequenceModule(L.LightningModule):
     """Trains ``model`` on ``task`` batches ``(x, y, mask)`` with masked losses.
 
-    Each optimiser step: forward a chunk (the whole sequence without TBPTT) from the carried state,
+    A fetched batch of several ``batch_size`` batches is split into them, one step each. Each
+    optimiser step: forward a chunk (the whole sequence without TBPTT) from the carried state,
     ``masked_loss``, backward, clip the gradient norm to ``grad_clip_norm`` (``None``: measure
     only), stop as diverged on a non-finite norm, step, detach the state. Feedback topologies get
     ``targets`` and ``teacher_forcing=plan.probability(step)``.
 
     Example::
 
-        module = SequenceModule(model, task, scorer, optimizer=partial(torch.optim.Adam, lr=3e-3),
+        module = SequenceModule(model, task, scorer, batch_size=64,
+                                optimizer=partial(torch.optim.Adam, lr=3e-3),
                                 grad_clip_norm=1.0, plan=TeacherForcingPlan("teacher_forcing"),
                                 tbptt_chunk=None, val_every=50, primary="mse", goal="min",
                                 select_group="plain")
-        module.phase(end_step=600, patience=4); L.Trainer(max_steps=600).fit(module, loader)
+        module.phase(end_step=600, patience=4)
+        fit_quietly(module, training_loader(task.split("train"), 64, seed=0), {}, run_dir=path)
     """
 
     def __init__(
@@ -79,6 +82,7 @@ class SequenceModule(L.LightningModule):
         task: Any,
         scorer: SplitScorer,
         *,
+        batch_size: int,
         optimizer: Any,
         grad_clip_norm: float | None,
         plan: TeacherForcingPlan,
@@ -93,6 +97,7 @@ class SequenceModule(L.LightningModule):
         self.model = model
         self.kind = task.kind
         self.scorer = scorer
+        self.batch_size = batch_size
         self.make_optimizer = optimizer
         self.grad_clip_norm = grad_clip_norm
         self.plan = plan
@@ -135,12 +140,24 @@ class SequenceModule(L.LightningModule):
             return batch
         return super().transfer_batch_to_device(batch, device, dataloader_idx)
 
-    def training_step(self, batch: tuple[torch.Tensor, ...], batch_idx: int) -> None:
+    def _done(self) -> bool:
         state = self.fit_state
-        if state.diverged or state.early_stopped or state.step >= self.end_step:
-            self.trainer.should_stop = True
-            return
+        return state.diverged or state.early_stopped or state.step >= self.end_step
+
+    def training_step(self, batch: tuple[torch.Tensor, ...], batch_idx: int) -> None:
+        # One Lightning call brings several batches (see ``training_loader``); each is a step.
         x, y, mask = batch
+        for row in range(0, x.shape[0], self.batch_size):
+            if self._done():
+                break
+            rows = slice(row, row + self.batch_size)
+            self._train_batch(x[rows], y[rows], mask[rows])
+        if self._done():
+            self.trainer.should_stop = True
+
+    def _train_batch(self, x: torch.Tensor, y: torch.Tensor, mask: torch.Tensor) -> None:
+        """One batch: an optimiser step per TBPTT chunk (one without TBPTT)."""
+        state = self.fit_state
         # The raw optimiser: Lightning's wrapper adds hooks and profiler scopes per step that
         # this engine does not use (it counts steps and stops by itself).
         optimizer = self.configure_optimizers()
@@ -156,28 +173,30 @@ class SequenceModule(L.LightningModule):
                 prediction, carried = self.model(x[:, start:stop], carried, **extra)
             loss = masked_loss(self.kind, prediction, y[:, start:stop], mask[:, start:stop])
             optimizer.zero_grad(set_to_none=True)
-            self.manual_backward(loss)
-            if not self._clip_and_check(loss):
-                self.trainer.should_stop = True
+            if self.distributed:
+                self.manual_backward(loss)  # DDP's gradient sync is prepared there
+            else:
+                loss.backward()
+            loss_value = float(loss.detach())
+            if not self._clip_and_check(loss_value):
                 return
             optimizer.step()
             carried = detach_state(carried)
             state.step += 1
-            state.loss_sum += float(loss.detach())
+            state.loss_sum += loss_value
             state.loss_count += 1
             if state.step % self.val_every == 0 or state.step >= self.end_step:
                 self.validate()
-            if state.diverged or state.early_stopped or state.step >= self.end_step:
-                self.trainer.should_stop = True
+            if self._done():
                 return
 
-    def _clip_and_check(self, loss: torch.Tensor) -> bool:
+    def _clip_and_check(self, loss: float) -> bool:
         """Clip, count clipping, and mark divergence; True when the step may be applied."""
         limit = math.inf if self.grad_clip_norm is None else self.grad_clip_norm
         norm = float(torch.nn.utils.clip_grad_norm_(self.model.parameters(), limit))
         # Under DDP the norm is of all-reduced gradients, so every rank decides alike; a rank's
         # own loss is checked only when there is no other rank to fall out of step with.
-        finite = math.isfinite(norm) and (self.distributed or math.isfinite(float(loss.detach())))
+        finite = math.isfinite(norm) and (self.distributed or math.isfinite(loss))
         if not finite:
             step = self.fit_state.step + 1
             self.fit_state.diverged_at = step

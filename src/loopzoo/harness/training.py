@@ -153,7 +153,8 @@ class _Run:
         return SequenceModule(
             copy.deepcopy(self.model), self.task,
             SplitScorer(self.task, self.val, feeds_back=self.feeds_back),
-            optimizer=make, grad_clip_norm=settings.grad_clip_norm, plan=self.plan,
+            batch_size=settings.batch_size, optimizer=make,
+            grad_clip_norm=settings.grad_clip_norm, plan=self.plan,
             tbptt_chunk=settings.tbptt_chunk, val_every=settings.val_every,
             primary=self.task.metric, goal=self.task.goal, select_group=self.select_group,
         )
