@@ -35,7 +35,8 @@ sizes = st.fixed_dictionaries(
 )
 
 
-def _build(name: str, s: dict, **options):
+def _build(case: tuple[str, dict], s: dict):
+    name, options = case
     torch.manual_seed(s["seed"])
     model = loopzoo.create(
         name, input_size=s["input_size"], output_size=s["output_size"],
@@ -52,9 +53,9 @@ def _close_states(got, want) -> None:
         torch.testing.assert_close(g, w, **TOL)
 
 
-@pytest.mark.parametrize("name", NAMES)
-def test_attributes_and_rebuild(name: str) -> None:
-    model = loopzoo.create(name, input_size=3, output_size=2, hidden_size=6)
+def test_attributes_and_rebuild(topology_case: tuple[str, dict]) -> None:
+    name, options = topology_case
+    model = loopzoo.create(name, input_size=3, output_size=2, hidden_size=6, **options)
     assert model.topology == name
     assert (model.input_size, model.output_size, model.hidden_size) == (3, 2, 6)
     assert isinstance(model.feeds_back_output, bool)
@@ -67,11 +68,10 @@ def test_attributes_and_rebuild(name: str) -> None:
     assert all(bool((s == 0).all()) for s in state)
 
 
-@pytest.mark.parametrize("name", NAMES)
 @SETTINGS
 @given(s=sizes)
-def test_step_equals_forward(name: str, s: dict) -> None:
-    model, x, _ = _build(name, s)
+def test_step_equals_forward(topology_case: tuple[str, dict], s: dict) -> None:
+    model, x, _ = _build(topology_case, s)
     y, final = model(x)
     assert y.shape == (s["batch"], s["steps"], s["output_size"])
     state, ys = None, []
@@ -82,11 +82,10 @@ def test_step_equals_forward(name: str, s: dict) -> None:
     _close_states(state, final)
 
 
-@pytest.mark.parametrize("name", NAMES)
 @SETTINGS
 @given(s=sizes, cut=st.floats(0.0, 1.0))
-def test_chunked_equals_whole(name: str, s: dict, cut: float) -> None:
-    model, x, targets = _build(name, s)
+def test_chunked_equals_whole(topology_case: tuple[str, dict], s: dict, cut: float) -> None:
+    model, x, targets = _build(topology_case, s)
     k = round(cut * (s["steps"] - 1)) + 1 if s["steps"] > 1 else 1
     for kwargs in ({}, {"targets": targets, "teacher_forcing": 1.0}):
         y, final = model(x, **kwargs)
@@ -100,11 +99,12 @@ def test_chunked_equals_whole(name: str, s: dict, cut: float) -> None:
         _close_states(end, final)
 
 
-@pytest.mark.parametrize("name", NAMES)
 @SETTINGS
 @given(s=sizes, data=st.data())
-def test_lengths_equal_per_sequence_truncation(name: str, s: dict, data) -> None:
-    model, x, targets = _build(name, s)
+def test_lengths_equal_per_sequence_truncation(
+    topology_case: tuple[str, dict], s: dict, data
+) -> None:
+    model, x, targets = _build(topology_case, s)
     lengths = data.draw(
         st.lists(st.integers(0, s["steps"]), min_size=s["batch"], max_size=s["batch"])
     )
@@ -121,11 +121,10 @@ def test_lengths_equal_per_sequence_truncation(name: str, s: dict, data) -> None
             _close_states(tuple(f[b:b + 1] for f in final), want)
 
 
-@pytest.mark.parametrize("name", NAMES)
 @SETTINGS
 @given(s=sizes, data=st.data())
-def test_causal_in_inputs_and_targets(name: str, s: dict, data) -> None:
-    model, x, targets = _build(name, s)
+def test_causal_in_inputs_and_targets(topology_case: tuple[str, dict], s: dict, data) -> None:
+    model, x, targets = _build(topology_case, s)
     t = data.draw(st.integers(0, s["steps"] - 1))
     later_x = x.clone()
     later_x[:, t + 1:] += torch.randn_like(later_x[:, t + 1:])
@@ -142,10 +141,10 @@ def test_causal_in_inputs_and_targets(name: str, s: dict, data) -> None:
         torch.testing.assert_close(y_later_t[:, : t + 1], y[:, : t + 1], **TOL)
 
 
-@pytest.mark.parametrize("name", NAMES)
-def test_every_parameter_gets_a_gradient(name: str) -> None:
+def test_every_parameter_gets_a_gradient(topology_case: tuple[str, dict]) -> None:
+    name, options = topology_case
     torch.manual_seed(0)
-    model = loopzoo.create(name, input_size=3, output_size=2, hidden_size=5).train()
+    model = loopzoo.create(name, input_size=3, output_size=2, hidden_size=5, **options).train()
     x, targets = torch.randn(4, 6, 3), torch.randn(4, 6, 2)
     for kwargs in ({}, {"targets": targets}):
         model.zero_grad()
