@@ -154,3 +154,11 @@ def test_onnx_graphs_of_option_variants_match_eager(name, options):
     for graph in graphs_for(model):
         data = export_bytes(model, graph, "onnx")
         assert max_error(model, graph, onnx_runner(data), BATCH_SIZES, LENGTHS) <= TOLERANCE, graph
+
+
+def test_a_float64_model_exports_a_float64_step_graph(build):
+    model = build("hidden-feedback").double()
+    data = export_bytes(model, "step", "onnx")
+    assert _session(data).get_inputs()[0].type == "tensor(double)"
+    # float64 all the way: the gap is rounding of float64, far below the float32 tolerance.
+    assert max_error(model, "step", onnx_runner(data), BATCH_SIZES, LENGTHS) <= 1e-12

@@ -95,18 +95,19 @@ def graph_spec(model: torch.nn.Module, name: str) -> GraphSpec:
     model = model.eval()
     batch, time = Dim("batch", min=1), Dim("time", min=1)
     state = tuple(t.detach() for t in model.init_state(_TRACE_BATCH))
+    dtype = state[0].dtype  # the model's own: a float64 model exports a float64 graph
     state_names = [f"state_{i}" for i in range(len(state))]
     state_dims = tuple({0: batch} for _ in state)
     if name == "step":
         return GraphSpec(
             name=name,
             module=_StepGraph(model),
-            example_inputs=(torch.zeros(_TRACE_BATCH, model.input_size), state),
+            example_inputs=(torch.zeros(_TRACE_BATCH, model.input_size, dtype=dtype), state),
             dynamic_shapes=({0: batch}, state_dims),
             input_names=["x_t", *state_names],
             output_names=["y_t", *(f"next_{n}" for n in state_names)],
         )
-    x = torch.zeros(_TRACE_BATCH, _TRACE_TIME, model.input_size)
+    x = torch.zeros(_TRACE_BATCH, _TRACE_TIME, model.input_size, dtype=dtype)
     final_names = [f"final_{n}" for n in state_names]
     if name == "sequence":
         return GraphSpec(
@@ -120,7 +121,7 @@ def graph_spec(model: torch.nn.Module, name: str) -> GraphSpec:
     return GraphSpec(
         name=name,
         module=_TeacherForcedGraph(model),
-        example_inputs=(x, torch.zeros(_TRACE_BATCH, _TRACE_TIME, model.output_size), state),
+        example_inputs=(x, x.new_zeros(_TRACE_BATCH, _TRACE_TIME, model.output_size), state),
         dynamic_shapes=({0: batch, 1: time}, {0: batch, 1: time}, state_dims),
         input_names=["x", "targets", *state_names],
         output_names=["y", *final_names],

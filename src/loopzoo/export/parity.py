@@ -99,16 +99,20 @@ def max_error(
         raise unknown_choice(f"graph for topology {model.topology!r}", graph, graphs_for(model))
     model = model.eval()
     generator = torch.Generator().manual_seed(seed)
+    dtype = model.init_state(1)[0].dtype
     worst = 0.0
     for batch in batch_sizes:
         for steps in lengths:
-            x = torch.randn(batch, steps, model.input_size, generator=generator)
+            x = torch.randn(batch, steps, model.input_size, generator=generator, dtype=dtype)
             state = tuple(
-                0.5 * torch.randn(t.shape, generator=generator) for t in model.init_state(batch)
+                0.5 * torch.randn(t.shape, generator=generator, dtype=dtype)
+                for t in model.init_state(batch)
             )
             targets = None
             if graph == "sequence-teacher-forced":
-                targets = torch.randn(batch, steps, model.output_size, generator=generator)
+                targets = torch.randn(
+                    batch, steps, model.output_size, generator=generator, dtype=dtype
+                )
             with torch.no_grad():
                 y_ref, final_ref = model(
                     x, state, targets=targets, teacher_forcing=None if targets is None else 1.0
