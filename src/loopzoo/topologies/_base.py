@@ -22,6 +22,7 @@ __all__ = [
     "TOPOLOGIES",
     "RecurrentTopology",
     "State",
+    "activation",
     "batch_first",
     "check_finite",
     "hold",
@@ -53,6 +54,11 @@ def uniform_init(module: nn.Module, hidden_size: int) -> None:
     bound = 1.0 / math.sqrt(hidden_size)
     for parameter in module.parameters():
         nn.init.uniform_(parameter, -bound, bound)
+
+
+def activation(nonlinearity: str) -> Callable[[Tensor], Tensor]:
+    """The function named by the ``nonlinearity`` option: torch.tanh or torch.relu."""
+    return torch.relu if nonlinearity == "relu" else torch.tanh
 
 
 def make_readout(

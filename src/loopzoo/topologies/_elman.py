@@ -16,7 +16,7 @@ import torch
 from torch import Tensor, nn
 from torch.autograd.function import FunctionCtx, once_differentiable
 
-from loopzoo.topologies._base import project_time_major
+from loopzoo.topologies._base import activation, project_time_major
 
 __all__ = ["AdditiveRecurrence", "additive_scan"]
 
@@ -215,7 +215,7 @@ class AdditiveRecurrence(nn.Module):
     def step(self, x_t: Tensor, h: Tensor) -> Tensor:
         """One step: x_t (B, I), h (B, H) -> h (B, H)."""
         a = torch.addmm(self.bias, x_t, self.weight_ih.t()) + h @ self.weight_hh.t()
-        z = torch.relu(a) if self.nonlinearity == "relu" else torch.tanh(a)
+        z = activation(self.nonlinearity)(a)
         if self.scale != 1.0:
             z = z * self.scale
         return z + h if self.carry else z

@@ -23,6 +23,7 @@ from torch import Tensor, nn
 from loopzoo.topologies._base import (
     RecurrentTopology,
     State,
+    activation,
     batch_first,
     make_readout,
     project_time_major,
@@ -67,7 +68,7 @@ class DeepTransition(RecurrentTopology):
                 f"transition_depth >= 2, got {depth}"
             )
         hidden = self.hidden_size
-        self.activation = torch.relu if self.options["nonlinearity"] == "relu" else torch.tanh
+        self.activation = activation(self.options["nonlinearity"])
         # Rows [0, H): x into the first layer; rows [H, 2H) with shortcut: x into the last layer.
         self.weight_ih = nn.Parameter(torch.empty(hidden * (2 if shortcut else 1), self.input_size))
         self.weight_hh = nn.Parameter(torch.empty(hidden, hidden))

@@ -25,6 +25,7 @@ from loopzoo.topologies._activations import batched_tanh
 from loopzoo.topologies._base import (
     RecurrentTopology,
     State,
+    activation,
     batch_first,
     check_finite,
     make_readout,
@@ -79,7 +80,7 @@ class OutputFeedback(RecurrentTopology):
                 f"'output-feedback' option fed_back={fed_back!r} does not fit "
                 f"output_kind={kind!r}; accepted: {', '.join(map(repr, _FED_BACK[kind]))}"
             )
-        self.activation = torch.relu if self.options["nonlinearity"] == "relu" else torch.tanh
+        self.activation = activation(self.options["nonlinearity"])
         self.weight_ih = nn.Parameter(torch.empty(self.hidden_size, self.input_size))
         self.weight_oh = nn.Parameter(torch.empty(self.hidden_size, self.output_size))
         self.bias = nn.Parameter(torch.empty(self.hidden_size))

@@ -22,6 +22,7 @@ from torch import Tensor, nn
 from loopzoo.topologies._base import (
     RecurrentTopology,
     State,
+    activation,
     batch_first,
     make_readout,
     project_time_major,
@@ -48,7 +49,7 @@ class GatedResidualRecurrence(nn.Module):
         self.weight_ih = nn.Parameter(torch.empty(2 * hidden_size, input_size))
         self.weight_hh = nn.Parameter(torch.empty(2 * hidden_size, hidden_size))
         self.bias = nn.Parameter(torch.empty(2 * hidden_size))
-        self.activation = torch.relu if nonlinearity == "relu" else torch.tanh
+        self.activation = activation(nonlinearity)
 
     def _update(self, projected: Tensor, h: Tensor) -> Tensor:
         candidate, gate = (projected + h @ self.weight_hh.t()).chunk(2, dim=-1)
