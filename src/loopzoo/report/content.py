@@ -16,7 +16,7 @@ from loopzoo.report.document import (
     Table,
 )
 from loopzoo.report.figures import overall_figure, styles_for, task_figures
-from loopzoo.report.summary import (
+from loopzoo.report.results import (
     COST_FIELDS,
     LATENCY_FIELD,
     REACH_FACTORS,

@@ -6,7 +6,7 @@ import csv
 import io
 import math
 
-from loopzoo.report.summary import (
+from loopzoo.report.results import (
     COST_FIELDS,
     REACH_FACTORS,
     REACH_PHASES,

@@ -21,7 +21,7 @@ from matplotlib.figure import Figure as MplFigure
 from loopzoo.report.document import Figure
 from loopzoo.report.loading import finite_number
 from loopzoo.report.reach import relative_norms
-from loopzoo.report.summary import LATENCY_FIELD, Row, Summary, TaskSummary
+from loopzoo.report.results import LATENCY_FIELD, Row, Summary, TaskSummary
 
 __all__ = ["Style", "styles_for", "task_figures", "overall_figure"]
 

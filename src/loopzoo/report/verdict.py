@@ -3,8 +3,8 @@
 from __future__ import annotations
 
 from loopzoo.report import formatting as fmt
+from loopzoo.report.results import LATENCY_FIELD, Row, TaskSummary
 from loopzoo.report.stats import welch_test
-from loopzoo.report.summary import LATENCY_FIELD, Row, TaskSummary
 
 __all__ = ["task_verdict"]
 
