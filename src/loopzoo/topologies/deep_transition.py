@@ -69,12 +69,13 @@ class DeepTransition(RecurrentTopology):
             )
         hidden = self.hidden_size
         self.activation = activation(self.options["nonlinearity"])
-        # Rows [0, H): x into the first layer; rows [H, 2H) with shortcut: x into the last layer.
-        self.weight_ih = nn.Parameter(torch.empty(hidden * (2 if shortcut else 1), self.input_size))
-        self.weight_hh = nn.Parameter(torch.empty(hidden, hidden))
+        # Rows [0, H) feed the first layer; with shortcut, rows [H, 2H) feed the last layer, so
+        # one product per step serves both.
+        rows = hidden * (2 if shortcut else 1)
+        self.weight_ih = nn.Parameter(torch.empty(rows, self.input_size))
+        self.weight_hh = nn.Parameter(torch.empty(rows, hidden))
         self.bias = nn.Parameter(torch.empty(hidden))
         self.transition = nn.ModuleList(nn.Linear(hidden, hidden) for _ in range(depth - 1))
-        self.weight_shortcut = nn.Parameter(torch.empty(hidden, hidden)) if shortcut else None
         self.readout = make_readout(
             hidden, self.output_size, depth=self.options["output_depth"],
             nonlinearity=self.options["nonlinearity"],
@@ -85,19 +86,21 @@ class DeepTransition(RecurrentTopology):
         return (self.hidden_size,)
 
     def _project(self, x_tm: Tensor) -> Tensor:
-        """x (T, B, I) -> (T, B, H) or (T, B, 2H); the bias of the first layer is added here."""
-        u = project_time_major(x_tm, self.weight_ih, None, time_major=True)
-        hidden = self.hidden_size
-        return torch.cat([u[..., :hidden] + self.bias, u[..., hidden:]], dim=-1)
+        """x (T, B, I) -> U x + b (T, B, H), or with shortcut [U x + b; U_s x] (T, B, 2H)."""
+        bias = self.bias
+        if self.options["shortcut"]:
+            bias = torch.cat([bias, bias.new_zeros(self.hidden_size)])  # U_s x has no bias
+        return project_time_major(x_tm, self.weight_ih, bias, time_major=True)
 
     def _transition(self, u_t: Tensor, h: Tensor) -> Tensor:
-        hidden = self.hidden_size
-        z = self.activation(u_t[:, :hidden] + h @ self.weight_hh.t())
+        hidden, shortcut = self.hidden_size, self.options["shortcut"]
+        a = torch.addmm(u_t, h, self.weight_hh.t())  # (B, H), or (B, 2H) with the shortcut
+        z = self.activation(a[:, :hidden] if shortcut else a)
         last = len(self.transition) - 1
         for index, layer in enumerate(self.transition):
             pre = layer(z)
-            if index == last and self.weight_shortcut is not None:
-                pre = pre + u_t[:, hidden:] + h @ self.weight_shortcut.t()
+            if shortcut and index == last:
+                pre = pre + a[:, hidden:]
             z = self.activation(pre)
         return z
 

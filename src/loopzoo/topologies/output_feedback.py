@@ -159,7 +159,9 @@ class OutputFeedback(RecurrentTopology):
         ys, final = scan(cell, u, state, time_major_mask(valid))
         return batch_first(ys), final
 
-    def _teacher_forced(self, x, state, valid, targets) -> tuple[Tensor, State]:
+    def _teacher_forced(
+        self, x: Tensor, state: State, valid: Tensor | None, targets: Tensor
+    ) -> tuple[Tensor, State]:
         """All steps at once: o_{t-1} = targets[:, t-1], and the carried state at t = 0."""
         batch, steps = x.shape[0], x.shape[1]
         previous = torch.cat([state[0].unsqueeze(1), targets[:, :-1]], dim=1)  # (B, T, O)
