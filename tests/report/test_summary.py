@@ -192,6 +192,8 @@ def test_wide_spread_tie_is_not_called_as_good(tmp_path, demo):
     demo.write_records(tmp_path, records)
     task = summarise(load_runs(tmp_path)[0]).tasks[0]
     assert stats.ttest_ind(steady, erratic, equal_var=False).pvalue >= 0.05
+    erratic_row = next(r for r in task.rows if r.label == "residual-skip")
+    assert erratic_row.versus_best.verdict == "inconclusive"
     text = " ".join(task_verdict(task, 0.05))
     assert "residual-skip is not significantly different, but only because" in text
     assert "take residual-skip" not in text

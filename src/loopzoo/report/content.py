@@ -44,10 +44,10 @@ def _reading_guide(summary: Summary) -> Bullets:
         f"half width of its {confidence} Student-t confidence interval. Diverged and failed runs "
         "are counted, not averaged in.",
         f"'vs best' is Welch's two-sided t-test (unequal variances) against the rank-1 row at "
-        f"alpha = {summary.alpha:g}: 'tie' means the difference is within seed noise; 'untested' "
-        "means a side has fewer than 2 usable seeds. With few seeds the test has little power: "
-        "a tie is no proof of equal quality, so the verdicts call a tie close only when the "
-        "row's mean lies inside the winner's interval.",
+        f"alpha = {summary.alpha:g}: 'tie' means not significantly different and the row's mean "
+        "lies inside the best row's interval; 'inconclusive' means not significantly different "
+        "only because the row's seeds spread widely (no evidence of equal quality); 'untested' "
+        "means a side has fewer than 2 usable seeds.",
         "Output-feedback rows selected on free running are ranked on their free-running test "
         "metric (feeding back their own outputs); the exposure-bias table shows both figures.",
         "Rank 1 is best; equal means share a rank. Classical baselines are ranked with the "
@@ -61,9 +61,9 @@ def _reading_guide(summary: Summary) -> Bullets:
 
 
 def _versus(comparison: Comparison) -> str:
-    if comparison.verdict in ("indistinguishable", "worse"):
-        word = "tie" if comparison.verdict == "indistinguishable" else "worse"
-        return f"{word} (p {fmt.p_value(comparison.p_value)})"
+    words = {"indistinguishable": "tie", "inconclusive": "inconclusive", "worse": "worse"}
+    if comparison.verdict in words:
+        return f"{words[comparison.verdict]} (p {fmt.p_value(comparison.p_value)})"
     return {"best": "best", "untested": "untested"}.get(comparison.verdict, fmt.MISSING)
 
 
@@ -86,7 +86,7 @@ def _quality_table(task: TaskSummary) -> Table:
             str(row.counts["missing"]),
             fmt.number(row.rank) if row.rank else fmt.MISSING,
             _versus(row.versus_best),
-            *((_versus(row.versus_pick) if row.kind == "model" else "",) if baseline_best else ()),
+            *((_versus(row.versus_pick),) if baseline_best else ()),
             _yes_no(row.front_latency),
         )
         for row in task.rows

@@ -38,8 +38,14 @@ def compare(row: Row, best: Row | None, alpha: float) -> Comparison:
     result = welch_test(row.values, best.values)
     if result is None:
         return Comparison("untested", None)
-    verdict = "indistinguishable" if result.p_value >= alpha else "worse"
-    return Comparison(verdict, result.p_value)
+    if result.p_value < alpha:
+        return Comparison("worse", result.p_value)
+    # Not separated by Welch. Call it a tie only when the row's mean lies inside the best row's
+    # interval; otherwise the test merely lacked power (the row's seeds spread widely).
+    assert row.interval is not None and best.interval is not None
+    low, high = best.interval.low, best.interval.high
+    inside = low is not None and high is not None and low <= row.interval.mean <= high
+    return Comparison("indistinguishable" if inside else "inconclusive", result.p_value)
 
 
 def fronts(rows: Sequence[Row], goal: str, attribute: str) -> dict[tuple[str, str], bool]:

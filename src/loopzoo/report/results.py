@@ -37,8 +37,10 @@ REACH_PHASES = (("init", "at init"), ("final", "trained"))
 
 @dataclass(frozen=True)
 class Comparison:
-    """How a row stands against the best row: ``best``, ``indistinguishable`` (Welch p >= alpha),
-    ``worse`` (p < alpha), ``untested`` (fewer than 2 values on a side) or ``no data``."""
+    """How a row stands against the best row: ``best``; ``indistinguishable`` (Welch p >= alpha
+    and the row's mean inside the best row's interval); ``inconclusive`` (p >= alpha but the mean
+    outside it: the seeds spread too widely to tell); ``worse`` (p < alpha); ``untested`` (fewer
+    than 2 values on a side); or ``no data``."""
 
     verdict: str
     p_value: float | None

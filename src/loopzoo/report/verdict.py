@@ -24,13 +24,6 @@ def _quality(row: Row, task: TaskSummary, seeds: bool = True) -> str:
     return f"{text} over {row.interval.n} seeds" if seeds and row.interval.n > 1 else text
 
 
-def _inside(row: Row, pick: Row) -> bool:
-    interval = pick.interval
-    if row.interval is None or interval is None or interval.low is None or interval.high is None:
-        return False
-    return interval.low <= row.interval.mean <= interval.high
-
-
 def _pick_sentence(pick: Row, task: TaskSummary, alpha: float) -> list[str]:
     direction = "lower" if task.goal == "min" else "higher"
     topologies = [r for r in task.rows if r.kind == "model" and r.key != pick.key and r.interval]
@@ -39,15 +32,13 @@ def _pick_sentence(pick: Row, task: TaskSummary, alpha: float) -> list[str]:
     same = [r for r in topologies if r.versus_pick.verdict == "indistinguishable"]
     worse = [r for r in topologies if r.versus_pick.verdict == "worse"]
     untested = [r for r in topologies if r.versus_pick.verdict == "untested"]
-    # A tie only counts as "as good" when the tied row's mean lies inside the pick's interval;
-    # otherwise Welch failed to separate them because the tied row's seeds spread widely.
-    close = [r for r in same if _inside(r, pick)]
-    loose = [r for r in same if not _inside(r, pick)]
+    close = same
+    loose = [r for r in topologies if r.versus_pick.verdict == "inconclusive"]
     if close:
         verb = "is" if len(close) == 1 else "are"
         sentences.append(
             f"{_names(close)} {verb} statistically indistinguishable from it "
-            f"(Welch p ≥ {alpha:g}, mean inside its interval), so the ranking among them is "
+            f"(Welch p ≥ {alpha:g} and a mean inside its interval), so the ranking among them is "
             "seed noise."
         )
         mine = _latency(pick)
@@ -67,7 +58,7 @@ def _pick_sentence(pick: Row, task: TaskSummary, alpha: float) -> list[str]:
             f"(e.g. {example.label}: {_quality(example, task, seeds=False)}); that is no "
             "evidence of being as good."
         )
-    if worse and not same and not untested:
+    if worse and not same and not loose and not untested:
         sentences.append(f"It is significantly better than every other topology (p < {alpha:g}).")
     if untested:
         sentences.append(
