@@ -50,6 +50,14 @@ def test_non_positive_or_non_integer_sizes(name: str, field: str, bad) -> None:
         loopzoo.create(name, **{**SIZES, field: bad})
 
 
+def test_impossible_sizes_name_the_memory_they_need() -> None:
+    # hidden_size 10^7: W_hh alone holds 10^14 floats (400 TB), more than any machine here has.
+    with pytest.raises(ValueError, match="cannot build 'hidden-feedback' with input_size=3, "
+                                         "output_size=2, hidden_size=10000000: its "
+                                         "100,000,060,000,002 parameters"):
+        loopzoo.create("hidden-feedback", input_size=3, output_size=2, hidden_size=10**7)
+
+
 @pytest.mark.parametrize(
     ("name", "options", "message"),
     [

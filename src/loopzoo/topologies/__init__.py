@@ -48,4 +48,15 @@ def create(name: str, **sizes_and_options: Any) -> RecurrentTopology:
     >>> model.topology, model.options["nonlinearity"]
     ('hidden-feedback', 'tanh')
     """
-    return TOPOLOGIES.get(name)(**sizes_and_options)
+    builder = TOPOLOGIES.get(name)
+    try:
+        return builder(**sizes_and_options)
+    except (RuntimeError, MemoryError) as error:
+        # Sizes that pass their checks can still ask for more memory than there is.
+        count = parameter_count(name, **sizes_and_options)
+        sizes = ", ".join(f"{k}={v}" for k, v in sizes_and_options.items())
+        raise ValueError(
+            f"cannot build {name!r} with {sizes}: its {count:,} parameters "
+            f"({4 * count / 2**30:,.1f} GiB as float32) do not fit in memory; choose smaller "
+            "sizes (loopzoo.width_for_budget finds a hidden_size for a parameter budget)"
+        ) from error
