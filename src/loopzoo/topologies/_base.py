@@ -276,14 +276,14 @@ class RecurrentTopology(nn.Module):
         self._check_dtype(name, value)
         return value
 
-    def _check_dtype(self, name: str, value: Tensor) -> None:
-        reference = self._reference_parameter()
+    def _check_dtype(self, name: str, value: Tensor, expected: torch.dtype | None = None) -> None:
+        expected = self._reference_parameter().dtype if expected is None else expected
         if not value.is_floating_point():
             raise TypeError(f"{name} must be a floating-point tensor, got dtype {value.dtype}")
-        if value.dtype != reference.dtype:
+        if value.dtype != expected:
             raise TypeError(
                 f"{name} has dtype {value.dtype} but the model's parameters are "
-                f"{reference.dtype}; convert one of them (e.g. model.to({value.dtype}))"
+                f"{expected}; convert one of them (e.g. model.to({value.dtype}))"
             )
 
     def _lengths_mask(
@@ -332,6 +332,7 @@ class RecurrentTopology(nn.Module):
                 f"state for {self.topology!r} must be a tuple of {len(sizes)} tensor(s) shaped "
                 f"{expected}, got {got}"
             )
+        dtype = self._reference_parameter().dtype
         for index, (tensor, n) in enumerate(zip(state, sizes, strict=True)):
             name = f"state[{index}]"
             if not isinstance(tensor, Tensor):
@@ -341,5 +342,5 @@ class RecurrentTopology(nn.Module):
                     f"{name} must have shape {_shape((batch, n))} (batch, {n}), got shape "
                     f"{tuple(tensor.shape)}"
                 )
-            self._check_dtype(name, tensor)
+            self._check_dtype(name, tensor, dtype)
         return tuple(state)
