@@ -33,9 +33,11 @@ def main(argv: list[str] | None = None) -> int:
     scorer = AlarmScorer(metadata, args.alarm)
     out = csv.DictWriter(sys.stdout, fieldnames=OUTPUT_COLUMNS, lineterminator="\n")
     out.writeheader()
+    started: set[str] = set()
     for reading in read_readings(args.readings):
-        if reading.turbine not in runner.active:
+        if reading.turbine not in started:  # a turbine seen for the first time: a new stream
             runner.start(reading.turbine)
+            started.add(reading.turbine)
         prediction = runner.push(reading.turbine, scale(reading.values, metadata))
         out.writerow(scorer.score(reading, float(prediction[0])))
         sys.stdout.flush()
