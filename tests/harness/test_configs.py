@@ -7,6 +7,9 @@ so a new task or topology file is exercised here without new test code.
 import dataclasses
 import itertools
 import math
+import subprocess
+import sys
+import zipfile
 from pathlib import Path
 
 import pytest
@@ -23,17 +26,17 @@ FAST = [
     "trainer.max_steps=4", "protocol.val_every=2", "protocol.patience=1",
     "protocol.lr_grid=[0.01]", "task.batch_size=8", "task.budget=900",
 ]
-TINY_SIZES = {"train_size": 16, "val_size": 8, "test_size": 8, "length": 6, "lines": 60,
-              "window": 4}
+# Forecasting windows keep their size: a window must cover the seasonal baseline's period.
+TINY_SIZES = {"train_size": 16, "val_size": 8, "test_size": 8, "length": 6, "lines": 60}
 TEXT = "pump 3 pressure nominal\nvalve 7 closed after check\nfan 2 vibration high\n" * 40
 # Columns the csv configs' required keys (???) are pointed at, in the demo file below.
 CSV_COLUMNS = {"target": "level", "label": "state", "sequence": "unit"}
 
 
 def demo_csv(path: Path) -> Path:
-    """An invented tank-level log: 12 units x 10 readings, each unit labelled by its state."""
+    """An invented tank-level log: 40 units x 10 readings, each unit labelled by its state."""
     rows = ["unit,step,level,state"]
-    for unit in range(12):
+    for unit in range(40):
         for step in range(10):
             rows.append(f"{unit},{step},{math.sin(unit + step / 3):.4f},{unit % 2}")
     path.write_text("\n".join(rows) + "\n", encoding="utf-8")
@@ -179,3 +182,16 @@ def test_suite_per_task_settings_apply_and_the_command_line_wins(tmp_path):
         assert "per_task" not in cfg
         cfg = compose_job(["suite=quick", f"task={task}", "task.budget=777"])
         assert cfg.task.budget == 777
+
+
+@pytest.mark.slow
+def test_a_built_wheel_ships_every_config_file(tmp_path):
+    # From an installed package the configs are found as loopzoo.conf: the wheel must hold them.
+    repo = Path(__file__).resolve().parents[2]
+    subprocess.run([sys.executable, "-m", "pip", "wheel", "--no-deps", "--no-build-isolation",
+                    "-w", str(tmp_path), str(repo)], check=True, capture_output=True)
+    (wheel,) = tmp_path.glob("loopzoo-*.whl")
+    shipped = {name for name in zipfile.ZipFile(wheel).namelist() if name.endswith(".yaml")}
+    expected = {f"loopzoo/conf/{p.relative_to(repo / 'conf').as_posix()}"
+                for p in (repo / "conf").rglob("*.yaml")}
+    assert expected and expected == shipped
