@@ -79,3 +79,16 @@ def test_class_outputs_feed_back_a_distribution(tmp_path: Path, training_forcing
     assert body["status"] == "ok", body["reason"]
     assert body["feedback"]["fed_back"] == "distribution"
     assert "cross_entropy" in body["metrics"]["test_free_running"]
+
+
+def test_truncated_bptt_steps_feedback_topologies_chunk_by_chunk(tmp_path: Path,
+                                                                  training_forcing):
+    body = train_and_evaluate(
+        tiny_config("protocol.tbptt_chunk=5", "model.feedback.mode=teacher_forcing",
+                    "~model.feedback.schedule", "~model.feedback.k"),
+        tmp_path,
+    )
+    assert body["status"] == "ok", body["reason"]
+    # Length 12 in chunks of 5: one forward pass and one optimiser step per chunk.
+    assert len(training_forcing) == 20
+    assert body["cost"]["steps"] == 20
