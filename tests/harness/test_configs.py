@@ -195,3 +195,16 @@ def test_a_built_wheel_ships_every_config_file(tmp_path):
     expected = {f"loopzoo/conf/{p.relative_to(repo / 'conf').as_posix()}"
                 for p in (repo / "conf").rglob("*.yaml")}
     assert expected and expected == shipped
+
+
+@pytest.mark.slow
+def test_the_ddp_trainer_config_trains_through_the_command_line(tmp_path):
+    # trainer=ddp: ddp_spawn over two CPU processes (gloo), one run, one record.
+    run = subprocess.run(
+        [sys.executable, "-m", "loopzoo.cli", "train", "trainer=ddp", "model=gru", "task=adding",
+         *FAST, *shrink("adding", tmp_path), "trainer.enable_progress_bar=false",
+         f"out={tmp_path / 'out'}"], capture_output=True, text=True, timeout=900)
+    assert run.returncode == 0, run.stderr[-3000:]
+    (record,) = [r for r in records.load_records(tmp_path / "out") if r["kind"] == "model"]
+    assert record["status"] == "ok", record["reason"]
+    assert record["config"]["trainer"]["strategy"] == "ddp_spawn"
