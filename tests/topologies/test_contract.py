@@ -15,7 +15,7 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 import loopzoo
-from loopzoo.topologies import parameter_count
+from loopzoo.topologies import TOPOLOGIES, parameter_count
 
 NAMES = loopzoo.available()
 TOL = {"atol": 1e-10, "rtol": 1e-8}
@@ -59,6 +59,9 @@ def test_attributes_and_rebuild(topology_case: tuple[str, dict]) -> None:
     assert model.topology == name
     assert (model.input_size, model.output_size, model.hidden_size) == (3, 2, 6)
     assert isinstance(model.feeds_back_output, bool)
+    declared = set(TOPOLOGIES.get(name).option_specs)
+    assert set(model.options) == {"input_size", "output_size", "hidden_size"} | declared
+    assert all(model.options[k] == v for k, v in options.items() if k != "fed_back")
     twin = loopzoo.create(model.topology, **model.options)
     assert twin.options == model.options
     shapes = {k: v.shape for k, v in model.state_dict().items()}
