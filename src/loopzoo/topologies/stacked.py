@@ -65,9 +65,10 @@ class Stacked(RecurrentTopology):
         return (self.hidden_size,) * self.options["num_layers"]
 
     def _between_layers(self, signal: Tensor, layer: int) -> Tensor:
-        if layer == 0:
+        rate = self.options["dropout"]
+        if layer == 0 or rate == 0.0:
             return signal
-        return dropout(signal, self.options["dropout"], self.training)
+        return dropout(signal, rate, self.training)
 
     def _sequence(
         self,
