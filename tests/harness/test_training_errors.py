@@ -40,6 +40,7 @@ def tiny_config(*overrides: str):
         (["+protocol.warmup=3"], r"protocol keys \['warmup'\] are unknown"),
         (["trainer.max_steps=0"], r"trainer.max_steps = 0"),
         (["+trainer.gradient_clip_val=1.0"], r"trainer.gradient_clip_val .*optim.grad_clip_norm"),
+        (["+trainer.max_epoch=3"], r"trainer.max_epoch: unknown Lightning Trainer argument"),
         (["task.batch_size=1000"], r"task.batch_size = 1000 exceeds the 128 training sequences"),
         (["+model.feedback.mode=scheduled"], r"does not feed back its output"),
         (["task.options.length=0"], r"task 'adding'"),

@@ -17,6 +17,7 @@ practice); ``lr_probe_fraction=1.0`` gives full runs per rate instead.
 from __future__ import annotations
 
 import copy
+import inspect
 import math
 import time
 from pathlib import Path
@@ -27,6 +28,7 @@ import torch
 from omegaconf import DictConfig
 
 import loopzoo
+from loopzoo._registry import unknown_choice
 from loopzoo.diagnostics import gradient_reach
 from loopzoo.harness.costs import PeakMemory, step_latency_ms
 from loopzoo.harness.data import training_loader
@@ -94,6 +96,15 @@ def _feedback_plan(settings: RunSettings, model: torch.nn.Module) -> TeacherForc
         return TeacherForcingPlan.from_options(settings.feedback, total_steps=settings.max_steps)
     except ValueError as error:
         raise ConfigError(str(error)) from error
+
+
+def _check_trainer(settings: RunSettings) -> None:
+    accepted = [name for name in inspect.signature(L.Trainer.__init__).parameters
+                if name != "self"]
+    for key in settings.trainer:
+        if key not in accepted:
+            error = unknown_choice("Lightning Trainer argument", key, accepted)
+            raise ConfigError(f"trainer.{key}: {error}")
 
 
 def _check_protocol(settings: RunSettings, train_rows: int) -> None:
@@ -223,6 +234,7 @@ def train_and_evaluate(cfg: DictConfig, run_dir: Path) -> dict[str, Any]:
     started, clock = utc_now(), time.perf_counter()
     run_dir = Path(run_dir)
     settings = read_settings(cfg)
+    _check_trainer(settings)
     task = _build_task(settings)
     model = _build_model(settings, task)
     plan = _feedback_plan(settings, model)
