@@ -17,6 +17,8 @@ def atomic_write_bytes(path: str | os.PathLike[str], data: bytes) -> None:
     target.parent.mkdir(parents=True, exist_ok=True)
     fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".tmp", dir=target.parent)
     try:
+        # mkstemp creates the file owner-only (0600); give it the mode a plain open() would.
+        os.chmod(tmp, 0o666 & ~_current_umask())
         with os.fdopen(fd, "wb") as handle:
             handle.write(data)
             handle.flush()
@@ -25,6 +27,12 @@ def atomic_write_bytes(path: str | os.PathLike[str], data: bytes) -> None:
     except BaseException:
         Path(tmp).unlink(missing_ok=True)
         raise
+
+
+def _current_umask() -> int:
+    mask = os.umask(0)
+    os.umask(mask)
+    return mask
 
 
 def atomic_write_text(path: str | os.PathLike[str], text: str) -> None:
