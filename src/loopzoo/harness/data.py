@@ -76,6 +76,11 @@ def training_loader(split: Any, batch_size: int, seed: int,
 
     Split an item with ``tensor.split(batch_size)``: the batches are the ones a plain loader with
     ``batch_size`` and ``drop_last=True`` would give for the same permutation.
+
+    Example::
+
+        for x, y, mask in training_loader(task.split("train"), 64, seed=0):
+            x.shape   # (8 * 64, L, input_size), the last item of a pass possibly fewer batches
     """
     return DataLoader(
         SplitDataset(split),

@@ -46,6 +46,11 @@ def fit_quietly(module: L.LightningModule, loader: Any, trainer_options: dict[st
     The module counts its own optimiser steps and stops itself (the Trainer runs without a step
     or epoch limit). ``trainer_options`` are Lightning Trainer keyword arguments passed through
     (accelerator, devices, strategy, enable_progress_bar, ...).
+
+    Example::
+
+        module.phase(end_step=600, patience=4)
+        seconds = fit_quietly(module, loader, {"enable_progress_bar": False}, run_dir=path)
     """
     for name in _CHATTY_LOGGERS:
         logging.getLogger(name).setLevel(logging.WARNING)
