@@ -52,17 +52,18 @@ def cores() -> int:
 def output_kind(task: DictConfig) -> str:
     """``"classes"`` for a classification task, ``"real"`` otherwise (output-feedback's option).
 
-    Used in ``conf/model/output-feedback.yaml`` as ``${loopzoo.output_kind:${task}}``. A task
-    whose kind depends on its options (csv) is built once, without a seed, to ask it.
+    Used in ``conf/model/output-feedback.yaml`` as ``${loopzoo.output_kind:${task}}``; reads the
+    registered task class's ``kind``.
     """
-    from loopzoo.tasks import TASKS, create
+    from loopzoo.tasks import TASKS
 
     try:
         kind = getattr(TASKS.get(task.name), "kind", None)
-        if kind is None:
-            kind = create(task.name, **OmegaConf.to_container(task.options, resolve=True)).kind
-    except (ValueError, TypeError, OSError) as error:
-        raise ConfigError(f"task {task.name!r}: {error}") from None
+    except ValueError as error:
+        raise ConfigError(str(error)) from None
+    if kind not in ("regression", "classification"):
+        raise ConfigError(f"task {task.name!r} has no fixed kind: set "
+                          "model.options.output_kind=real or model.options.output_kind=classes")
     return "classes" if kind == "classification" else "real"
 
 
