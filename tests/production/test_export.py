@@ -64,6 +64,18 @@ def test_onnx_teacher_forced_graph_matches_forward_with_targets(feedback_topolog
     assert error <= TOLERANCE
 
 
+@pytest.mark.parametrize(
+    "feedback_topology",
+    [name for name in loopzoo.available() if TOPOLOGIES.get(name).feeds_back_output],
+)
+def test_torch_export_teacher_forced_program_keeps_time_dynamic(feedback_topology, build):
+    model = build(feedback_topology)
+    data = export_bytes(model, "sequence-teacher-forced", "torch-export")
+    runner = runner_for("torch-export", data, "sequence-teacher-forced")
+    error = max_error(model, "sequence-teacher-forced", runner, BATCH_SIZES, LENGTHS)
+    assert error <= TOLERANCE
+
+
 def test_torch_export_step_program_streams_like_forward(topology, build):
     model = build(topology)
     data = export_bytes(model, "step", "torch-export")

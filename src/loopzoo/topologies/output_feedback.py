@@ -164,7 +164,9 @@ class OutputFeedback(RecurrentTopology):
     ) -> tuple[Tensor, State]:
         """All steps at once: o_{t-1} = targets[:, t-1], and the carried state at t = 0."""
         batch, steps = x.shape[0], x.shape[1]
-        previous = torch.cat([state[0].unsqueeze(1), targets[:, :-1]], dim=1)  # (B, T, O)
+        # Slicing after the concatenation keeps T symbolic under torch.export (slicing the
+        # targets first made the exported program guard on the traced length).
+        previous = torch.cat([state[0].unsqueeze(1), targets], dim=1)[:, :-1]  # (B, T, O)
         inputs = torch.cat([x, previous], dim=-1).view(batch * steps, -1)  # (B*T, I + O)
         weight = torch.cat([self.weight_ih, self.weight_oh], dim=1)  # (H, I + O)
         pre = torch.addmm(self.bias, inputs, weight.t())  # (B*T, H)
