@@ -25,7 +25,8 @@ def tiny_config(*overrides: str):
 
 
 def test_a_run_returns_every_body_field(tmp_path: Path):
-    body = train_and_evaluate(tiny_config("model=gru", "task=adding", "seed=3"), tmp_path)
+    run_dir = tmp_path / "runs" / "some-run"
+    body = train_and_evaluate(tiny_config("model=gru", "task=adding", "seed=3"), run_dir)
     assert body["status"] == "ok", body["reason"]
     assert (body["model"], body["task"], body["seed"]) == ("gru", "adding", 3)
     # The width is solved from the budget by the zoo's own solver.
@@ -49,6 +50,9 @@ def test_a_run_returns_every_body_field(tmp_path: Path):
     assert body["curves"]["step"] == [10, 20, 30, 40][: len(body["curves"]["step"])]
     assert len(body["curves"]["val"]) == len(body["curves"]["train_loss"])
     assert body["started"] <= body["finished"]
+    # The production artifact of the best weights, loadable by loopzoo.load.
+    assert body["artifact"] == "runs/some-run/artifact"
+    assert loopzoo.load(tmp_path / body["artifact"]).hidden_size == width
     reach = body["gradient_reach"]
     assert reach["lags"] == list(range(12))
     assert reach["init"][0] == reach["final"][0] == 1.0

@@ -19,6 +19,7 @@ from __future__ import annotations
 import copy
 import inspect
 import math
+import os
 import time
 from pathlib import Path
 from typing import Any
@@ -307,7 +308,9 @@ def _train(run: _Run, body: dict[str, Any]) -> None:
     body["metrics"] = _metrics(val, test)
     metadata = {"task": run.settings.task, "task_options": run.settings.task_options,
                 "seed": run.settings.seed, "metrics": body["metrics"]["test"]}
-    body["artifact"] = str(loopzoo.save(model, run.run_dir / "artifact", _finite(metadata)))
+    saved = loopzoo.save(model, run.run_dir / "artifact", _finite(metadata))
+    # Relative to the output directory (DIR/runs/<run_id>/artifact), so DIR can be moved.
+    body["artifact"] = Path(os.path.relpath(saved, run.run_dir.parent.parent)).as_posix()
     batched = min(run.settings.batch_size, len(run.val.x))
     body["cost"].update(
         step_latency_ms=step_latency_ms(model, run.val.x[:1]),
