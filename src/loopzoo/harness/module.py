@@ -5,6 +5,10 @@ needs several optimiser steps per batch with the detached state carried between 
 has no built-in), the clip rate needs the pre-clipping gradient norm of every step, and a
 non-finite step must stop the run before the optimiser applies it.
 
+Each Lightning ``training_step`` call receives several batches (``training_loader`` fetches
+``BATCHES_PER_FETCH`` at a time) and takes one optimiser step per batch, so Lightning's per-call
+loop cost is shared by several steps; the steps are the same as with one batch per call.
+
 Validation runs inside the training step every ``val_every`` optimiser steps on the whole
 validation split, scored by ``task.score`` (a task metric over the full split, not a mean of
 per-batch values). Every DDP rank computes the same score from the same synchronised weights, so
