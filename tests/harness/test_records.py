@@ -1,6 +1,8 @@
 """Run ids, records and the output-directory manifest."""
 
+import hashlib
 import json
+from importlib import resources
 
 import pytest
 
@@ -111,6 +113,16 @@ def test_manifest_is_written_once_and_refuses_another_suite_or_schema(tmp_path):
     (tmp_path / records.MANIFEST).write_text(json.dumps(old))
     with pytest.raises(OutDirError, match="config_version"):
         records.claim_out_dir(tmp_path, "quick")
+    old.update(config_version=records.CONFIG_VERSION, suite_digest="0123456789ab")
+    (tmp_path / records.MANIFEST).write_text(json.dumps(old))
+    with pytest.raises(OutDirError, match="an earlier definition of suite 'quick'"):
+        records.claim_out_dir(tmp_path, "quick")
+
+
+def test_the_suite_digest_is_the_shipped_file_s_hash():
+    text = resources.files("loopzoo.conf").joinpath("suite", "quick.yaml").read_bytes()
+    assert records.suite_digest("quick") == hashlib.sha256(text).hexdigest()[:12]
+    assert records.suite_digest(None) is None
 
 
 def test_records_without_a_manifest_are_not_adopted(tmp_path):

@@ -15,9 +15,11 @@ config) and the body returned by ``loopzoo.harness.training.train_and_evaluate``
 
 from __future__ import annotations
 
+import hashlib
 import json
 import platform
 from datetime import datetime, timezone
+from importlib import resources
 from pathlib import Path
 from typing import Any
 
@@ -40,6 +42,7 @@ __all__ = [
     "load_records",
     "is_done",
     "claim_out_dir",
+    "suite_digest",
     "versions",
     "utc_now",
 ]
@@ -168,14 +171,24 @@ def is_done(out: str | Path, run_id: str) -> dict[str, Any] | None:
     return record if record.get("status") in KEPT_ON_RERUN else None
 
 
+def suite_digest(suite: str | None) -> str | None:
+    """SHA-256 (12 hex) of the shipped suite file, so an edited suite never joins old runs."""
+    if suite is None:
+        return None
+    text = resources.files("loopzoo.conf").joinpath("suite", f"{suite}.yaml").read_bytes()
+    return hashlib.sha256(text).hexdigest()[:12]
+
+
 def claim_out_dir(out: str | Path, suite: str | None) -> dict[str, Any]:
     """Check ``out`` may take runs of ``suite`` under this schema; write its manifest if new.
 
     Refuses (``OutDirError``) an output directory whose manifest names another record schema,
-    config version or suite, or that holds records but no manifest.
+    config version, suite or suite definition (``suite_digest``), or that holds records but no
+    manifest.
     """
     out = Path(out)
-    wanted = {"schema": SCHEMA, "config_version": CONFIG_VERSION, "suite": suite}
+    wanted = {"schema": SCHEMA, "config_version": CONFIG_VERSION, "suite": suite,
+              "suite_digest": suite_digest(suite)}
     manifest_path = out / MANIFEST
     if manifest_path.exists():
         try:
@@ -185,12 +198,15 @@ def claim_out_dir(out: str | Path, suite: str | None) -> dict[str, Any]:
         if not isinstance(manifest, dict):
             raise OutDirError(f"{manifest_path}: unreadable manifest (not a JSON object)")
         for key, value in wanted.items():
-            if manifest.get(key) != value:
-                raise OutDirError(
-                    f"out={out} holds runs with {key} {manifest.get(key)!r}, this run has "
-                    f"{key} {value!r}; records of different {key}s are never mixed: choose "
-                    "another out directory"
-                )
+            if manifest.get(key) == value:
+                continue
+            found = f"runs with {key} {manifest.get(key)!r}, this run has {key} {value!r}"
+            if key == "suite_digest":
+                found = f"runs of an earlier definition of suite {suite!r} (its file changed)"
+            raise OutDirError(
+                f"out={out} holds {found}; records of different settings are never mixed: "
+                "choose another out directory"
+            )
         return manifest
     if records_dir(out).is_dir() and any(records_dir(out).glob("[!.]*.json")):
         raise OutDirError(
