@@ -63,7 +63,7 @@ def test_a_sweep_records_each_run_once_with_a_progress_line_each(tmp_path, capsy
 
     assert run_sweep(["model=gru,lstm", "seed=0", f"out={tmp_path}", *TINY]) == 0
     out = capsys.readouterr().out
-    assert "2 already recorded" in out and "sweep done: 2 skipped" in out
+    assert "2 already recorded" in out and "s: 2 skipped;" in out
 
 
 def test_failed_and_diverged_runs_are_recorded_and_the_sweep_goes_on(tmp_path, monkeypatch,
@@ -82,7 +82,7 @@ def test_failed_and_diverged_runs_are_recorded_and_the_sweep_goes_on(tmp_path, m
     sweep = ["model=lstm,gru,hidden-feedback", "seed=0", f"out={tmp_path}", *TINY]
     assert run_sweep(sweep) == 0
     out = capsys.readouterr().out
-    assert "sweep done: 1 diverged, 1 failed, 1 ok" in out
+    assert "s: 1 diverged, 1 failed, 1 ok;" in out
     found = model_records(tmp_path)
     assert found["lstm"]["status"] == "failed"
     assert found["lstm"]["reason"] == "RuntimeError: the node ran out of memory"
@@ -94,7 +94,7 @@ def test_failed_and_diverged_runs_are_recorded_and_the_sweep_goes_on(tmp_path, m
     # A rerun redoes the failed run only: diverged is a result of config and seed, kept.
     monkeypatch.setattr(training, "train_and_evaluate", real)
     assert run_sweep(sweep) == 0
-    assert "sweep done: 1 ok, 2 skipped" in capsys.readouterr().out
+    assert "s: 1 ok, 2 skipped;" in capsys.readouterr().out
     again = model_records(tmp_path)
     assert again["lstm"]["status"] == "ok"
     assert again["gru"] == found["gru"] and again["hidden-feedback"] == found["hidden-feedback"]

@@ -64,7 +64,7 @@ def test_a_killed_sweep_restarted_records_every_run_exactly_once(tmp_path):
     final = subprocess.run([sys.executable, "-m", "loopzoo.cli", "sweep", *SWEEP, f"out={out}"],
                            capture_output=True, text=True, timeout=600)
     assert final.returncode == 0, final.stderr
-    assert "sweep done:" in final.stdout
+    assert "sweep done in " in final.stdout
 
     files = sorted((out / "records").iterdir())
     assert not [p for p in files if p.name.startswith(".")], "a temporary file was left behind"

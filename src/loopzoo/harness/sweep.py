@@ -9,6 +9,7 @@ each job. Jobs whose record is kept on rerun (``records.KEPT_ON_RERUN``) are ski
 from __future__ import annotations
 
 import sys
+import time
 from collections import Counter
 from dataclasses import dataclass
 from pathlib import Path
@@ -84,6 +85,7 @@ def run_sweep(overrides: list[str]) -> int:
     2 when jobs were refused (their reasons are printed)."""
     from loopzoo.harness.app import hydra_sweep_entry
 
+    tick = time.perf_counter()
     plan = plan_sweep(overrides)
     records.claim_out_dir(plan.out, plan.suite)
     with state.sweep_lock(plan.out):
@@ -106,7 +108,8 @@ def run_sweep(overrides: list[str]) -> int:
         (plan.out / ".state" / "plan.json").unlink(missing_ok=True)
     counts = Counter(outcome["status"] for outcome in finished)
     summary = ", ".join(f"{n} {status}" for status, n in sorted(counts.items()))
-    print(f"sweep done: {summary or 'nothing ran'}; records in {records.records_dir(plan.out)}")
+    print(f"sweep done in {time.perf_counter() - tick:.0f} s: {summary or 'nothing ran'}; "
+          f"records in {records.records_dir(plan.out)}")
     refused = [o for o in finished if o["status"] == "refused"]
     for outcome in refused:
         print(f"refused: {outcome['model']} {outcome['task']} seed={outcome['seed']}: "
