@@ -15,14 +15,14 @@ from __future__ import annotations
 
 import sys
 from collections.abc import Callable
-from importlib import import_module, resources
+from importlib import import_module
 
 __all__ = ["main", "SUBCOMMANDS"]
 
 USAGE = """usage: loopzoo <command> [key=value ...]
 
 commands:
-  list                      the registered topologies, tasks and suites, one line each
+  list                      topologies, tasks, suites and sweep launchers, one line each
   train key=value ...       one run (model=, task=, seed=, out=, trainer.max_steps=, optim.lr=, ...)
   sweep key=a,b ...         a sweep (suite=NAME or comma lists), one record per run, resumable
   report DIR                report.md / .csv / .html from the records under DIR
@@ -38,29 +38,20 @@ def _first_line(obj: object) -> str:
     return doc.splitlines()[0].rstrip(".") if doc else ""
 
 
-def _suite_line(name: str) -> str:
-    text = resources.files("loopzoo.conf").joinpath("suite", f"{name}.yaml").read_text("utf-8")
-    comments = [
-        line.lstrip("# ").strip()
-        for line in text.splitlines()
-        if line.startswith("#") and "@package" not in line
-    ]
-    return comments[0] if comments else ""
-
-
 def _list(argv: list[str]) -> int:
     import loopzoo
+    from loopzoo.harness.shipped import description, shipped_options
     from loopzoo.tasks import TASKS
     from loopzoo.topologies import TOPOLOGIES
 
     if argv:
         return _fail(f"list takes no arguments, got {' '.join(argv)}")
-    folder = resources.files("loopzoo.conf").joinpath("suite")
-    suites = sorted(p.name[: -len(".yaml")] for p in folder.iterdir() if p.name.endswith(".yaml"))
     sections = [
         ("topologies (model=)", [(n, _first_line(TOPOLOGIES.get(n))) for n in loopzoo.available()]),
         ("tasks (task=)", [(n, _first_line(TASKS.get(n))) for n in loopzoo.tasks.available()]),
-        ("suites (suite=)", [(n, _suite_line(n)) for n in suites]),
+        ("suites (suite=)", [(n, description("suite", n)) for n in shipped_options("suite")]),
+        ("sweep launchers (hydra/launcher=)",
+         [(n, description("hydra/launcher", n)) for n in shipped_options("hydra/launcher")]),
     ]
     for title, rows in sections:
         print(title)

@@ -10,6 +10,7 @@ import loopzoo
 from loopzoo import cli
 from loopzoo.harness import records
 from loopzoo.harness.config import group_options
+from loopzoo.harness.shipped import shipped_options
 
 TINY = ["task=adding", "task.options.length=5", "+task.options.train_size=16",
         "+task.options.val_size=8", "+task.options.test_size=8", "task.batch_size=8",
@@ -17,11 +18,12 @@ TINY = ["task=adding", "task.options.length=5", "+task.options.train_size=16",
         "trainer.enable_progress_bar=false"]
 
 
-def test_list_names_every_topology_task_and_suite_with_a_line_each(capsys):
+def test_list_names_every_topology_task_suite_and_launcher_with_a_line_each(capsys):
     assert cli.main(["list"]) == 0
     lines = capsys.readouterr().out.splitlines()
     names = {line.split()[0]: line for line in lines if line.startswith("  ")}
-    for name in [*loopzoo.available(), *loopzoo.tasks.available(), *group_options("suite")]:
+    for name in [*loopzoo.available(), *loopzoo.tasks.available(), *group_options("suite"),
+                 *shipped_options("hydra/launcher")]:
         assert name in names, name
         assert len(names[name].split()) > 2, f"{name} has no description"
 

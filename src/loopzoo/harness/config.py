@@ -8,7 +8,6 @@ import os
 import re
 from collections.abc import Iterator
 from contextlib import contextmanager
-from importlib import resources
 from typing import Any
 
 from hydra import compose, initialize_config_module
@@ -22,6 +21,7 @@ from omegaconf.errors import MissingMandatoryValue, OmegaConfBaseException
 import loopzoo
 from loopzoo._registry import unknown_choice
 from loopzoo.harness.errors import ConfigError
+from loopzoo.harness.shipped import CONFIG_MODULE, shipped_options
 
 __all__ = [
     "CONFIG_MODULE",
@@ -35,7 +35,6 @@ __all__ = [
     "finish_config",
 ]
 
-CONFIG_MODULE = "loopzoo.conf"
 GROUPS = ("model", "task", "trainer", "optim", "protocol", "suite", "hydra/launcher")
 # Launchers the installed Hydra plugins provide besides the shipped presets.
 _PLUGIN_LAUNCHERS = ("basic", "joblib", "submitit_local", "submitit_slurm")
@@ -73,11 +72,9 @@ for _name, _resolver in (("loopzoo.cores", cores), ("loopzoo.output_kind", outpu
 
 
 def group_options(group: str) -> list[str]:
-    """Names of the shipped options of a config group (``conf/<group>/*.yaml``), sorted."""
-    folder = resources.files(CONFIG_MODULE).joinpath(group)
-    shipped = [p.name[: -len(".yaml")] for p in folder.iterdir() if p.name.endswith(".yaml")]
+    """The options of a config group: its shipped files, plus the plugins' launchers."""
     extra = list(_PLUGIN_LAUNCHERS) if group == "hydra/launcher" else []
-    return sorted(set(shipped + extra))
+    return sorted(set(shipped_options(group) + extra))
 
 
 def parse_overrides(overrides: list[str]) -> list[Override]:

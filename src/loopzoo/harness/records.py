@@ -25,6 +25,7 @@ from typing import Any
 
 from loopzoo._io import atomic_write_json
 from loopzoo.harness.errors import OutDirError
+from loopzoo.harness.shipped import CONFIG_MODULE
 
 __all__ = [
     "SCHEMA",
@@ -175,7 +176,7 @@ def suite_digest(suite: str | None) -> str | None:
     """SHA-256 (12 hex) of the shipped suite file, so an edited suite never joins old runs."""
     if suite is None:
         return None
-    text = resources.files("loopzoo.conf").joinpath("suite", f"{suite}.yaml").read_bytes()
+    text = resources.files(CONFIG_MODULE).joinpath("suite", f"{suite}.yaml").read_bytes()
     return hashlib.sha256(text).hexdigest()[:12]
 
 
