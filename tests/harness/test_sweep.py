@@ -123,3 +123,18 @@ def test_temporary_files_of_a_killed_write_are_cleared(tmp_path):
     assert not stale.exists()
     for path in (tmp_path / "records").iterdir():
         json.loads(path.read_text())
+
+
+def test_a_baseline_failure_keeps_the_run_record_and_is_retried(tmp_path, monkeypatch, caplog):
+    real = training.baseline_records
+
+    def broken(cfg):
+        raise RuntimeError("statsmodels is missing")
+
+    monkeypatch.setattr(training, "baseline_records", broken)
+    assert run_sweep(["model=gru", f"out={tmp_path}", *TINY]) == 0
+    assert "statsmodels is missing" in caplog.text
+    assert [r["kind"] for r in records.load_records(tmp_path)] == ["model"]
+    monkeypatch.setattr(training, "baseline_records", real)
+    assert run_sweep(["model=gru,lstm", f"out={tmp_path}", *TINY]) == 0
+    assert {r["kind"] for r in records.load_records(tmp_path)} == {"model", "baseline"}

@@ -24,6 +24,7 @@ from loopzoo._io import atomic_write_json, atomic_write_text
 from loopzoo.harness import records, runids, state
 from loopzoo.harness.config import cores, finish_config
 from loopzoo.harness.errors import ConfigError, OutDirError
+from loopzoo.harness.shipped import CONFIG_MODULE
 
 __all__ = ["Outcome", "run_one", "ensure_baselines", "threads_for_launcher", "sweep_job"]
 
@@ -153,7 +154,11 @@ def _run_locked(cfg: DictConfig, out: Path, sweep: bool) -> Outcome:
                 out, records.make_record(body, run_id=rid, kind="model", config=config)
             )
             # After the run, so a config refused before training leaves no record at all.
-            ensure_baselines(cfg)
+            try:
+                ensure_baselines(cfg)
+            except Exception as error:  # the run's record stands; the next run retries these
+                log.warning("baselines of task %s seed %s not recorded: %s: %s",
+                            cfg.task.name, cfg.seed, type(error).__name__, error)
             status, reason = body["status"], body.get("reason")
     return Outcome(rid, cfg.model.name, cfg.task.name, int(cfg.seed), status,
                    time.perf_counter() - tick, reason)
@@ -183,5 +188,5 @@ def sweep_job(cfg: DictConfig) -> dict[str, Any]:
 
 # The launcher pickles ``sweep_job`` by reference, so the decorated entry point gets its own name.
 hydra_sweep_entry = hydra.main(
-    version_base="1.3", config_path="pkg://loopzoo.conf", config_name="config"
+    version_base="1.3", config_path=f"pkg://{CONFIG_MODULE}", config_name="config"
 )(sweep_job)
