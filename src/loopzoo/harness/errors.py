@@ -1,4 +1,4 @@
-"""Errors the harness raises for bad input, caught by the command line and shown without a traceback."""
+"""Errors for bad harness input, caught by the command line and shown without a traceback."""
 
 from __future__ import annotations
 
