@@ -125,6 +125,10 @@ def main(argv: list[str] | None = None) -> int:
         return 0
     try:
         return SUBCOMMANDS[command](rest)
+    except KeyboardInterrupt:
+        print("loopzoo: interrupted; run the same command again to finish (finished runs are "
+              "kept)", file=sys.stderr)
+        return 130
     except ValueError as error:  # ConfigError, OutDirError and the zoo's own argument checks
         from loopzoo.harness.errors import ConfigError, OutDirError
 

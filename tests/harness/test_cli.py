@@ -127,3 +127,12 @@ def test_help_lists_the_commands(capsys):
     out = capsys.readouterr().out
     for command in cli.SUBCOMMANDS:
         assert command in out
+
+
+def test_an_interrupt_says_how_to_finish(monkeypatch, capsys):
+    def interrupted(argv):
+        raise KeyboardInterrupt
+
+    monkeypatch.setitem(cli.SUBCOMMANDS, "sweep", interrupted)
+    assert cli.main(["sweep", "suite=quick"]) == 130
+    assert "run the same command again to finish" in capsys.readouterr().err
