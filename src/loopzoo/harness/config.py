@@ -191,7 +191,16 @@ def _apply_per_task(cfg: DictConfig, overrides: list[str]) -> DictConfig:
     return merged
 
 
+# Keys every run needs; the shipped configs set them, a ``~key`` override could remove them.
+_REQUIRED = ("model.name", "model.options", "task.name", "task.options", "task.budget",
+             "task.batch_size", "trainer", "optim", "protocol", "seed", "out", "suite")
+
+
 def _check_names(cfg: DictConfig) -> None:
+    for key in _REQUIRED:
+        if OmegaConf.select(cfg, key, default="<missing>") == "<missing>":
+            raise ConfigError(f"{key} is required; the shipped configs set it (was it deleted "
+                              f"with ~{key}?)")
     topologies = loopzoo.available()
     if cfg.model.name not in topologies:
         raise ConfigError(str(unknown_choice("model.name", cfg.model.name, topologies)))
