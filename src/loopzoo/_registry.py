@@ -49,4 +49,5 @@ class Registry(Generic[T]):
         except KeyError:
             raise unknown_choice(self.kind, name, self.names()) from None
         except TypeError:
-            raise TypeError(f"{self.kind} name must be a string, got {type(name).__name__}") from None
+            kind = type(name).__name__
+            raise TypeError(f"{self.kind} name must be a string, got {kind}") from None

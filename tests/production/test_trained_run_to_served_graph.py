@@ -9,7 +9,6 @@ from __future__ import annotations
 import json
 import subprocess
 import sys
-from pathlib import Path
 
 import pytest
 import torch
@@ -34,7 +33,7 @@ def test_a_trained_run_exports_and_serves_like_its_model(topology, tmp_path):
     records = [json.loads(p.read_text()) for p in (out / "records").glob("*.json")]
     (record,) = [r for r in records if r["model"] == topology]
     assert record["status"] == "ok", record["reason"]
-    artifact = Path(record["artifact"])
+    artifact = out / record["artifact"]  # records name it relative to the output folder
     model = loopzoo.load(artifact)
     assert model.topology == topology
     _loopzoo("export", str(artifact), "--format", "onnx", "--out", str(tmp_path / "deploy"))
