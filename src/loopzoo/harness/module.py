@@ -20,7 +20,7 @@ from __future__ import annotations
 import copy
 import math
 import time
-from dataclasses import dataclass, field
+from dataclasses import asdict, dataclass, field
 from pathlib import Path
 from typing import Any
 
@@ -242,8 +242,9 @@ class SequenceModule(L.LightningModule):
         # ddp_spawn ships only the weights back to the launching process; the fit state and the
         # optimiser's moments travel through a file written by rank 0.
         if self.handoff is not None and self.trainer.world_size > 1 and self.trainer.is_global_zero:
+            # Plain containers only, so the launching process reads it with weights_only=True.
             torch.save(
-                {"fit_state": self.fit_state, "optimizer": self.optimizer.state_dict()},
+                {"fit_state": asdict(self.fit_state), "optimizer": self.optimizer.state_dict()},
                 self.handoff,
             )
 
@@ -251,7 +252,7 @@ class SequenceModule(L.LightningModule):
         """In the launching process: adopt the fit state a spawned rank 0 left behind."""
         if self.handoff is None or not self.handoff.exists():
             return
-        carried = torch.load(self.handoff, weights_only=False)
-        self.fit_state = carried["fit_state"]
+        carried = torch.load(self.handoff, weights_only=True)
+        self.fit_state = FitState(**carried["fit_state"])
         self.configure_optimizers().load_state_dict(carried["optimizer"])
         self.handoff.unlink()
