@@ -1,5 +1,5 @@
 """Forecasting a recorded series: chronological parts, (context window -> horizons) samples,
-scaling fitted on the training part, and the classical forecasting baselines."""
+levels or first differences scaled on the training part, and the classical baselines."""
 
 from __future__ import annotations
 
@@ -9,6 +9,7 @@ from abc import abstractmethod
 from typing import Any
 
 import numpy as np
+import torch
 
 from loopzoo.tasks._base import (
     SPLITS,
@@ -20,6 +21,7 @@ from loopzoo.tasks._base import (
 )
 from loopzoo.tasks._options import check_fraction, check_int, check_int_list
 from loopzoo.tasks._scaling import Standardizer
+from loopzoo.tasks._scoring import regression_metrics
 
 __all__ = ["SeriesData", "SeriesOptions", "SeriesTask"]
 
@@ -32,6 +34,7 @@ class SeriesOptions:
     test_fraction: float = 0.15  # share of the time steps at the end
     season: int | None = None  # period in steps for the seasonal-naive baseline (None: no season)
     ar_order: int | None = None  # AR lags; None chooses 1..min(window, 12) on the validation part
+    differences: bool = False  # inputs v[t] - v[t-1], targets v[t+h] - v[t] (for trending series)
 
     def __post_init__(self) -> None:
         check_int("window", self.window, minimum=1, maximum=1_000_000)
@@ -45,6 +48,8 @@ class SeriesOptions:
             check_int("season", self.season, minimum=1, maximum=self.window)
         if self.ar_order is not None:
             check_int("ar_order", self.ar_order, minimum=1, maximum=self.window)
+        if not isinstance(self.differences, bool):
+            raise ValueError(f"differences must be true or false, got {self.differences!r}")
 
 
 @dataclasses.dataclass(frozen=True)
@@ -69,7 +74,16 @@ class SeriesTask(RegressionTask):
     Sample i of a part reads steps [i, i + T + max h); x = the T context steps (all columns,
     standardised with the training part's mean and std), y[:, t] = the targets h steps after
     step t (scored only at t = T - 1). No sample straddles two parts. Output channel order:
-    for each target column, each horizon. Baselines: "persistence" (the last context value),
+    for each target column, each horizon.
+
+    With ``differences=True`` (for trending series, whose later parts leave the training range)
+    x[:, t] = v[t] - v[t-1] for every column and y[:, t] = v[t+h] - v[t] for each target and
+    horizon, each standardised with the mean and std of those differences on the training part.
+    A window's first step uses the row just before the window, which must lie in the same part,
+    so each part's first row starts no sample (sample i reads steps [i - 1, i + T + max h)).
+    ``score`` adds v[t] back, so every metric is still in the data's own units.
+
+    Baselines, the same in both modes in data units: "persistence" (the last context value),
     "seasonal-naive" (the value one season before the forecast step, if ``season`` is set) and
     "ar" (statsmodels AutoReg with a constant, fitted per target column on the training part,
     iterated for later horizons).
@@ -86,10 +100,17 @@ class SeriesTask(RegressionTask):
                                    self.options.test_fraction)
         self._check_length()
         train_start, train_end = self._bounds["train"]
-        self.input_scaler = Standardizer.fit(self.data.values[train_start:train_end])
-        means = [self.input_scaler.mean[c] for c in self.data.targets for _ in self.horizons]
-        stds = [self.input_scaler.std[c] for c in self.data.targets for _ in self.horizons]
-        self.scaler = Standardizer(mean=tuple(means), std=tuple(stds))
+        train = self.data.values[train_start:train_end]
+        if self.options.differences:
+            self.input_scaler = dataclasses.replace(
+                Standardizer.fit(np.diff(train, axis=0)),
+                method="standardise v[t] - v[t-1], fitted on the training part")
+            self.scaler = self._change_scaler(train)
+        else:
+            self.input_scaler = Standardizer.fit(train)
+            means = [self.input_scaler.mean[c] for c in self.data.targets for _ in self.horizons]
+            stds = [self.input_scaler.std[c] for c in self.data.targets for _ in self.horizons]
+            self.scaler = Standardizer(mean=tuple(means), std=tuple(stds))
         self.input_size = len(self.data.columns)
         self.output_size = len(self.data.targets) * len(self.horizons)
         self.channel_names = tuple(
@@ -102,10 +123,36 @@ class SeriesTask(RegressionTask):
     def _load(self) -> SeriesData:
         """Read the series (data units), raising a clear error for bad input."""
 
+    def _change_scaler(self, train: np.ndarray) -> Standardizer:
+        """Mean and std of v[t+h] - v[t] over the training rows, per output channel."""
+        fitted = [Standardizer.fit((train[h:, c] - train[:-h, c])[:, None])
+                  for c in self.data.targets for h in self.horizons]
+        return Standardizer(mean=tuple(f.mean[0] for f in fitted),
+                            std=tuple(f.std[0] for f in fitted),
+                            method="standardise v[t+h] - v[t], fitted on the training part")
+
+    @property
+    def _lead(self) -> int:
+        """Rows a sample reads before its window: the predecessor row when differencing."""
+        return 1 if self.options.differences else 0
+
     @property
     def _reach(self) -> int:
-        """Steps one sample reads: the window plus the furthest horizon."""
-        return self.options.window + max(self.horizons)
+        """Steps one sample reads: the window plus the furthest horizon (plus the lead row)."""
+        return self._lead + self.options.window + max(self.horizons)
+
+    def _levels(self, steps: np.ndarray) -> np.ndarray:
+        """(N, T) row numbers -> (N, T, channels) data-unit offset of the targets: v[t] of each
+        target (once per horizon) when differencing, else zero."""
+        if not self.options.differences:
+            return np.zeros((*steps.shape, self.output_size))
+        current = self.data.values[steps][..., list(self.data.targets)]
+        return np.repeat(current, len(self.horizons), axis=-1)
+
+    def _split_levels(self, split: Split) -> np.ndarray:
+        """``_levels`` of every window step of ``split``, located through its spans."""
+        first = split.span[:, :1].numpy() + self._lead
+        return self._levels(first + np.arange(self.options.window))
 
     def _check_length(self) -> None:
         total = len(self.data.values)
@@ -125,13 +172,16 @@ class SeriesTask(RegressionTask):
         """First step of every sample of a part whose scored targets are all observed."""
         if name not in self._starts:
             start, end = self._bounds[name]
-            starts = np.arange(start, end - self._reach + 1)
+            starts = np.arange(start, end - self._reach + 1) + self._lead
             forecast_steps = starts[:, None] + self.options.window - 1 + np.array(self.horizons)
             self._starts[name] = starts[~self.data.imputed[forecast_steps].any(axis=1)]
         return self._starts[name]
 
     def _make_splits(self) -> dict[str, Split]:
-        scaled = self.input_scaler.transform(self.data.values)
+        values = self.data.values
+        # row r holds v[r] - v[r-1]; row 0 has no predecessor and is never read (starts >= 1)
+        inputs = np.diff(values, axis=0, prepend=np.nan) if self.options.differences else values
+        scaled = self.input_scaler.transform(inputs)
         window = self.options.window
         splits = {}
         for name in SPLITS:
@@ -140,13 +190,28 @@ class SeriesTask(RegressionTask):
                 raise ValueError(f"{self.data.source}: the {name} part has no sample whose "
                                  "forecast steps are observed (all are filled-in values)")
             steps = starts[:, None] + np.arange(window)  # (N, T)
-            ahead = [scaled[steps + h][..., c] for c in self.data.targets for h in self.horizons]
+            ahead = np.stack([values[steps + h, c] for c in self.data.targets
+                              for h in self.horizons], axis=-1) - self._levels(steps)
             mask = np.zeros((len(starts), window), dtype=bool)
             mask[:, -1] = True
-            span = np.stack([starts, starts + self._reach - 1], axis=1)
-            splits[name] = make_split(scaled[steps], np.stack(ahead, axis=-1), mask,
+            span = np.stack([starts - self._lead, starts - self._lead + self._reach - 1], axis=1)
+            splits[name] = make_split(scaled[steps], self.scaler.transform(ahead), mask,
                                       np.full(len(starts), window), span, classes=False)
         return splits
+
+    def _metrics(self, prediction: torch.Tensor, split: Split) -> dict[str, float]:
+        levels = torch.as_tensor(self._split_levels(split))
+        return regression_metrics(self.scaler.inverse(prediction) + levels,
+                                  self.scaler.inverse(split.y) + levels, split.mask,
+                                  self.channel_names)
+
+    def score_in_data_units(self, prediction: np.ndarray, split: Split | str) -> dict[str, float]:
+        part = self.split(split) if isinstance(split, str) else split
+        values = np.asarray(prediction, dtype=np.float64)
+        levels = self._split_levels(part)
+        if values.shape != levels.shape:  # ``score`` refuses it, naming the expected shape
+            return self.score(torch.as_tensor(values), part)
+        return self.score(torch.as_tensor(self.scaler.transform(values - levels)), part)
 
     def _targets_in_window(self, name: str) -> np.ndarray:
         """(N, T, targets) raw target values of each sample's context window."""
@@ -218,6 +283,12 @@ class SeriesTask(RegressionTask):
                 "targets": [self.data.columns[c] for c in self.data.targets],
                 "parts": {name: {"first_row": a, "end_row": b}
                           for name, (a, b) in self._bounds.items()},
-                "scaling": self.input_scaler.describe(), "ar_order": self.ar_order(),
+                "inputs": ("first differences v[t] - v[t-1] of every column"
+                           if self.options.differences else "values of every column"),
+                "target_values": ("changes v[t+h] - v[t] from the current value, v[t] added back "
+                                  "for scoring" if self.options.differences
+                                  else "values at t + h"),
+                "scaling": self.input_scaler.describe(),
+                "target_scaling": self.scaler.describe(), "ar_order": self.ar_order(),
                 "ar_order_chosen_on": "given" if self.options.ar_order else "validation MSE",
                 **self.data.facts}
