@@ -8,7 +8,7 @@ import json
 
 import pytest
 
-import loopzoo.harness.training as training
+import loopzoo.engine.training as training
 from loopzoo.harness import records, state
 from loopzoo.harness.errors import ConfigError, OutDirError
 from loopzoo.harness.sweep import plan_sweep, run_sweep

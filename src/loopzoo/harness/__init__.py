@@ -1,4 +1,4 @@
-"""The harness: Hydra configs in, Lightning training, one atomic JSON record per run out.
+"""The harness: Hydra configs in, the engine trains, one atomic JSON record per run out.
 
 Modules (import the one you need; this package imports nothing heavy by itself):
 
@@ -6,8 +6,9 @@ Modules (import the one you need; this package imports nothing heavy by itself):
 - ``app``: run one job (skip if recorded, train, record, baselines, progress);
 - ``sweep``: expand a sweep like Hydra's multirun, check it, launch it;
 - ``records``, ``runids``, ``state``: record files, content-derived run ids, locks and progress;
-- ``training`` and its helpers: the LightningModule, the fair protocol, costs;
-- ``errors``: ``ConfigError`` and ``OutDirError``.
+- ``errors``: ``ConfigError`` (from ``loopzoo.engine.errors``) and ``OutDirError``.
+
+Training itself lives in ``loopzoo.engine``.
 """
 
 __all__: list[str] = []

@@ -76,7 +76,7 @@ def ensure_baselines(cfg: DictConfig) -> int:
     Returns how many were written now (0 when all exist). Parallel jobs sharing a (task, seed)
     wait on one lock, so the baselines are computed once.
     """
-    from loopzoo.harness.training import baseline_records
+    from loopzoo.engine.training import baseline_records
 
     out = Path(cfg.out)
     group = runids.baseline_group(cfg)
@@ -100,7 +100,7 @@ def ensure_baselines(cfg: DictConfig) -> int:
 
 def _train(cfg: DictConfig, run_dir: Path, started: str) -> dict[str, Any]:
     """The training engineer's ``train_and_evaluate``; an unexpected error becomes a failed body."""
-    from loopzoo.harness.training import train_and_evaluate
+    from loopzoo.engine.training import train_and_evaluate
 
     try:
         return train_and_evaluate(cfg, run_dir)

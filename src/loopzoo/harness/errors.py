@@ -2,11 +2,9 @@
 
 from __future__ import annotations
 
+from loopzoo.engine.errors import ConfigError
+
 __all__ = ["ConfigError", "OutDirError"]
-
-
-class ConfigError(ValueError):
-    """A config that cannot run (unknown key or name, impossible budget), found before training."""
 
 
 class OutDirError(ValueError):

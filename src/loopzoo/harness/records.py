@@ -7,7 +7,7 @@ Layout of an output directory ``DIR``::
     DIR/runs/<run_id>/            the run's own files (Lightning logs, artifact)
 
 A record holds ``schema``, ``run_id``, ``kind`` ("model" | "baseline"), ``config`` (the resolved
-config) and the body returned by ``loopzoo.harness.training.train_and_evaluate``: ``status``
+config) and the body returned by ``loopzoo.engine.training.train_and_evaluate``: ``status``
 ("ok" | "diverged" | "failed"), ``reason``, ``diverged_at_step``, ``model``, ``task``, ``suite``,
 ``seed``, ``params``, ``budget``, ``sizes``, ``versions``, ``primary``, ``metrics``, ``lr``,
 ``curves``, ``cost``, ``gradient_reach``, ``feedback``, ``started``, ``finished``.
@@ -17,13 +17,12 @@ from __future__ import annotations
 
 import hashlib
 import json
-import platform
-from datetime import datetime, timezone
 from importlib import resources
 from pathlib import Path
 from typing import Any
 
 from loopzoo._io import atomic_write_json
+from loopzoo.engine.provenance import utc_now, versions
 from loopzoo.harness.errors import OutDirError
 from loopzoo.harness.shipped import CONFIG_MODULE
 
@@ -63,11 +62,6 @@ BODY_FIELDS = (
 )
 
 
-def utc_now() -> str:
-    """The current time as ``YYYY-MM-DDTHH:MM:SSZ``."""
-    return datetime.now(timezone.utc).strftime("%Y-%m-%dT%H:%M:%SZ")
-
-
 def records_dir(out: str | Path) -> Path:
     """``out/records``."""
     return Path(out) / "records"
@@ -76,25 +70,6 @@ def records_dir(out: str | Path) -> Path:
 def record_path(out: str | Path, run_id: str) -> Path:
     """``out/records/<run_id>.json``."""
     return records_dir(out) / f"{run_id}.json"
-
-
-def versions() -> dict[str, Any]:
-    """Versions of python, torch, lightning, hydra and loopzoo, and torch's thread setting."""
-    import hydra
-    import lightning
-    import torch
-
-    import loopzoo
-
-    return {
-        "python": platform.python_version(),
-        "torch": torch.__version__,
-        "lightning": lightning.__version__,
-        "hydra": hydra.__version__,
-        "loopzoo": loopzoo.__version__,
-        "torch_threads": torch.get_num_threads(),
-        "torch_interop_threads": torch.get_num_interop_threads(),
-    }
 
 
 def make_record(

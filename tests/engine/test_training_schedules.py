@@ -9,7 +9,7 @@ import math
 
 import pytest
 
-from loopzoo.harness.schedules import TeacherForcingPlan, exponential, inverse_sigmoid, linear
+from loopzoo.engine.schedules import TeacherForcingPlan, exponential, inverse_sigmoid, linear
 
 
 def test_linear_decays_by_c_per_step_and_floors_at_e_min():

@@ -6,7 +6,7 @@ import pytest
 import torch
 
 import loopzoo
-from loopzoo.harness.costs import PeakMemory, step_latency_ms
+from loopzoo.engine.costs import PeakMemory, step_latency_ms
 
 
 @pytest.mark.skipif(not sys.platform.startswith("linux"), reason="VmHWM is Linux's")

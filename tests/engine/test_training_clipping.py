@@ -9,12 +9,12 @@ import torch
 from hydra import compose, initialize_config_module
 
 import loopzoo
-from loopzoo.harness.data import training_loader
-from loopzoo.harness.evaluation import SplitScorer
-from loopzoo.harness.lightning_setup import fit_quietly
-from loopzoo.harness.module import SequenceModule
-from loopzoo.harness.schedules import TeacherForcingPlan
-from loopzoo.harness.training import train_and_evaluate
+from loopzoo.engine.data import training_loader
+from loopzoo.engine.evaluation import SplitScorer
+from loopzoo.engine.lightning_setup import fit_quietly
+from loopzoo.engine.module import SequenceModule
+from loopzoo.engine.schedules import TeacherForcingPlan
+from loopzoo.engine.training import train_and_evaluate
 
 TINY = [
     "task.options.length=12", "+task.options.train_size=128", "+task.options.val_size=32",

@@ -27,10 +27,10 @@ from typing import Any
 import lightning as L
 import torch
 
-from loopzoo.harness.evaluation import NonFinitePrediction, SplitScorer, better
-from loopzoo.harness.objectives import masked_loss
-from loopzoo.harness.schedules import TeacherForcingPlan
-from loopzoo.harness.tbptt import chunk_spans, detach_state
+from loopzoo.engine.evaluation import NonFinitePrediction, SplitScorer, better
+from loopzoo.engine.objectives import masked_loss
+from loopzoo.engine.schedules import TeacherForcingPlan
+from loopzoo.engine.tbptt import chunk_spans, detach_state
 
 __all__ = ["FitState", "SequenceModule"]
 

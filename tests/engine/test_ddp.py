@@ -18,8 +18,8 @@ SCRIPT = textwrap.dedent(
     import torch
     from hydra import compose, initialize_config_module
 
-    from loopzoo.harness.module import SequenceModule
-    from loopzoo.harness.training import train_and_evaluate
+    from loopzoo.engine.module import SequenceModule
+    from loopzoo.engine.training import train_and_evaluate
 
     # Top level, so spawned workers (which import this file as __mp_main__) run it too: every
     # rank leaves its final weights behind, to show that the ranks stayed in step.

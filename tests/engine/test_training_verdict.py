@@ -11,7 +11,7 @@ from pathlib import Path
 import pytest
 from hydra import compose, initialize_config_module
 
-from loopzoo.harness.training import train_and_evaluate
+from loopzoo.engine.training import train_and_evaluate
 
 SETTINGS = [
     "task=adding", "task.options.length=20", "task.budget=2000", "trainer.max_steps=800",

@@ -4,7 +4,7 @@ from pathlib import Path
 
 from hydra import compose, initialize_config_module
 
-from loopzoo.harness.training import train_and_evaluate
+from loopzoo.engine.training import train_and_evaluate
 
 TINY = [
     "task.options.length=12", "+task.options.train_size=128", "+task.options.val_size=32",

@@ -5,7 +5,7 @@ import pytest
 import torch
 from sklearn.metrics import log_loss, mean_squared_error
 
-from loopzoo.harness.objectives import masked_loss
+from loopzoo.engine.objectives import masked_loss
 
 
 def test_regression_loss_is_the_mse_of_the_scored_positions():

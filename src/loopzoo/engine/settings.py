@@ -9,7 +9,7 @@ from typing import Any
 
 from omegaconf import DictConfig, OmegaConf
 
-from loopzoo.harness.errors import ConfigError
+from loopzoo.engine.errors import ConfigError
 
 __all__ = ["FEEDBACK_SELECTIONS", "RunSettings", "read_settings"]
 

@@ -31,16 +31,16 @@ from omegaconf import DictConfig
 import loopzoo
 from loopzoo._registry import unknown_choice
 from loopzoo.diagnostics import gradient_reach
-from loopzoo.harness.costs import PeakMemory, step_latency_ms
-from loopzoo.harness.data import training_loader
-from loopzoo.harness.errors import ConfigError
-from loopzoo.harness.evaluation import NonFinitePrediction, SplitScorer
-from loopzoo.harness.lightning_setup import fit_quietly
-from loopzoo.harness.module import SequenceModule
-from loopzoo.harness.optimizers import optimizer_factory
-from loopzoo.harness.records import utc_now, versions
-from loopzoo.harness.schedules import TeacherForcingPlan
-from loopzoo.harness.settings import RunSettings, read_settings
+from loopzoo.engine.costs import PeakMemory, step_latency_ms
+from loopzoo.engine.data import training_loader
+from loopzoo.engine.errors import ConfigError
+from loopzoo.engine.evaluation import NonFinitePrediction, SplitScorer
+from loopzoo.engine.lightning_setup import fit_quietly
+from loopzoo.engine.module import SequenceModule
+from loopzoo.engine.optimizers import optimizer_factory
+from loopzoo.engine.provenance import utc_now, versions
+from loopzoo.engine.schedules import TeacherForcingPlan
+from loopzoo.engine.settings import RunSettings, read_settings
 
 __all__ = ["baseline_records", "train_and_evaluate"]
 

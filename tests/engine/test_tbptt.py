@@ -10,13 +10,13 @@ import pytest
 import torch
 
 import loopzoo
-from loopzoo.harness.data import training_loader
-from loopzoo.harness.evaluation import SplitScorer
-from loopzoo.harness.lightning_setup import fit_quietly
-from loopzoo.harness.module import SequenceModule
-from loopzoo.harness.objectives import masked_loss
-from loopzoo.harness.schedules import TeacherForcingPlan
-from loopzoo.harness.tbptt import chunk_spans
+from loopzoo.engine.data import training_loader
+from loopzoo.engine.evaluation import SplitScorer
+from loopzoo.engine.lightning_setup import fit_quietly
+from loopzoo.engine.module import SequenceModule
+from loopzoo.engine.objectives import masked_loss
+from loopzoo.engine.schedules import TeacherForcingPlan
+from loopzoo.engine.tbptt import chunk_spans
 
 LENGTH, STEPS = 24, 3
 

@@ -6,9 +6,9 @@ from pathlib import Path
 import pytest
 from hydra import compose, initialize_config_module
 
-from loopzoo.harness import module
+from loopzoo.engine import module
+from loopzoo.engine.training import train_and_evaluate
 from loopzoo.harness.errors import ConfigError
-from loopzoo.harness.training import train_and_evaluate
 
 TINY = [
     "task.options.length=12", "+task.options.train_size=128", "+task.options.val_size=32",

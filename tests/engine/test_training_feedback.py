@@ -1,13 +1,13 @@
 """Output feedback under the harness: teacher forcing, free running and scheduled sampling
-(Bengio et al. 2015; schedules in loopzoo.harness.schedules), always also scored free running."""
+(Bengio et al. 2015; schedules in loopzoo.engine.schedules), always also scored free running."""
 
 from pathlib import Path
 
 import pytest
 
+from loopzoo.engine.schedules import inverse_sigmoid
+from loopzoo.engine.training import train_and_evaluate
 from loopzoo.harness.config import compose_job, composer
-from loopzoo.harness.schedules import inverse_sigmoid
-from loopzoo.harness.training import train_and_evaluate
 from loopzoo.topologies.output_feedback import OutputFeedback
 
 TINY = [
