@@ -138,3 +138,34 @@ def test_a_baseline_failure_keeps_the_run_record_and_is_retried(tmp_path, monkey
     monkeypatch.setattr(training, "baseline_records", real)
     assert run_sweep(["model=gru,lstm", f"out={tmp_path}", *TINY]) == 0
     assert {r["kind"] for r in records.load_records(tmp_path)} == {"model", "baseline"}
+
+
+def test_a_damaged_record_is_set_aside_and_only_that_run_is_redone(tmp_path, capsys):
+    assert run_sweep(["model=gru,lstm", f"out={tmp_path}", *TINY]) == 0
+    gru = next(p for p in (tmp_path / "records").glob("adding-gru-*.json"))
+    kept = records.read_record(next((tmp_path / "records").glob("adding-lstm-*.json")))
+    gru.write_text(gru.read_text()[:40])  # a truncated record
+    capsys.readouterr()
+    assert run_sweep(["model=gru,lstm", f"out={tmp_path}", *TINY]) == 0
+    captured = capsys.readouterr()
+    aside = list((tmp_path / records.DAMAGED_DIR).iterdir())
+    assert len(aside) == 1 and len(aside[0].read_text()) == 40
+    assert f"moved to {aside[0]}" in captured.err and str(gru) in captured.err
+    assert "1 already recorded" in captured.out and "1 ok, 1 skipped" in captured.out
+    assert records.read_record(gru)["status"] == "ok"
+    assert records.read_record(next((tmp_path / "records").glob("adding-lstm-*.json"))) == kept
+
+
+def test_jobs_of_an_earlier_killed_sweep_are_not_counted_in_the_next(tmp_path, capsys,
+                                                                       monkeypatch):
+    # An orphaned worker of a killed sweep finishes its job after a new sweep has started:
+    # it carries the old sweep's token, so the new plan's count stays right.
+    records.claim_out_dir(tmp_path, None)
+    state.write_plan(tmp_path, 1)
+    monkeypatch.setenv(state.SWEEP_TOKEN, "token-of-a-killed-sweep")
+    assert state.count_finished(tmp_path, {"status": "ok"}) is None
+    monkeypatch.delenv(state.SWEEP_TOKEN)
+    assert state.read_plan(tmp_path)["finished"] == []
+    assert run_sweep(["model=gru", f"out={tmp_path}", *TINY]) == 0
+    lines = [line for line in capsys.readouterr().out.splitlines() if line.startswith("[")]
+    assert [line.split("]")[0] for line in lines] == ["[  1/1"]

@@ -173,6 +173,9 @@ BAD_CLASS_FILES = [
     (CLASS_HEADER + "r1,2.0,ok\nr2,x,ok\n", "line 3, column 'current_a': 'x' is not a number"),
     (CLASS_HEADER + "r1,2.0,ok\nr2,2.0,ok\n", "single class 'ok'"),
     (CLASS_HEADER + "r1,2.0,ok\nr2,2.0,jam\n", "too few"),
+    # Twenty 'ok' runs and one 'jam' run: val and test would never see a jam.
+    (CLASS_HEADER + "".join(f"r{i},2.0,ok\n" for i in range(20)) + "r20,3.0,jam\n",
+     "class 'jam' has 1 sequence\\(s\\): too few to appear in the train, val and test parts"),
 ]
 
 

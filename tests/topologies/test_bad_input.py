@@ -58,6 +58,14 @@ def test_impossible_sizes_name_the_memory_they_need() -> None:
         loopzoo.create("hidden-feedback", input_size=3, output_size=2, hidden_size=10**7)
 
 
+@pytest.mark.parametrize("name", NAMES)
+def test_sizes_beyond_any_address_space_get_the_memory_message(name: str) -> None:
+    # hidden_size 10^9: a gated layer's 4H x H weight has more bytes than a 64-bit size counts.
+    with pytest.raises(ValueError, match=f"cannot build '{name}' with .*hidden_size=1000000000: "
+                                         ".* do not fit in memory"):
+        loopzoo.create(name, input_size=3, output_size=2, hidden_size=10**9)
+
+
 @pytest.mark.parametrize(
     ("name", "options", "message"),
     [
@@ -70,12 +78,14 @@ def test_impossible_sizes_name_the_memory_they_need() -> None:
         ("residual-skip", {"scale": 0.0}, r"scale must be a real number in \(0.0, 1.0\]"),
         ("output-feedback", {"output_kind": "classes", "fed_back": "value"}, "does not fit"),
         ("output-feedback", {"fed_back": "onehot"}, "accepted: 'value', 'detached'"),
+        ("output-feedback", {"output_kind": "classes", "output_size": 1},
+         r"needs output_size >= 2 \(one logit per class\)"),
         ("hidden-feedback", {"nonlinearity": "sigmoid"}, "one of 'tanh', 'relu'"),
     ],
 )
 def test_invalid_option_combinations(name: str, options: dict, message: str) -> None:
     with pytest.raises(ValueError, match=message):
-        loopzoo.create(name, **SIZES, **options)
+        loopzoo.create(name, **{**SIZES, **options})
 
 
 @pytest.mark.parametrize("name", NAMES)
@@ -99,6 +109,8 @@ def test_wrong_input_rank_features_dtype_and_values(name: str) -> None:
         model(bad)
     with pytest.raises(ValueError, match=r"x_t must have shape \(B, 3\)"):
         model.step(torch.randn(2, 5, 3))
+    with pytest.raises(ValueError, match="x_t contains 1 non-finite value"):
+        model.step(bad[:, 2])
 
 
 @pytest.mark.parametrize("name", NAMES)
@@ -136,6 +148,11 @@ def test_state_of_the_wrong_shape_count_or_dtype(name: str) -> None:
         model(x, (state[0].double(), *state[1:]))
     with pytest.raises(ValueError, match="state\\[0\\] must have shape"):
         model.step(x[:, 0], (torch.zeros(2, n + 1), *state[1:]))
+    nan_state = (torch.full((2, n), float("nan")), *state[1:])
+    with pytest.raises(ValueError, match=f"state\\[0\\] contains {2 * n} non-finite"):
+        model(x, nan_state)
+    with pytest.raises(ValueError, match=f"state\\[0\\] contains {2 * n} non-finite"):
+        model.step(x[:, 0], nan_state)
     with pytest.raises(ValueError, match="batch_size must be a positive integer"):
         model.init_state(0)
 

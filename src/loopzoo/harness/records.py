@@ -5,6 +5,7 @@ Layout of an output directory ``DIR``::
     DIR/loopzoo-out.json          manifest: record schema, config version, suite
     DIR/records/<run_id>.json     one record per run (model runs and classical baselines)
     DIR/runs/<run_id>/            the run's own files (Lightning logs, artifact)
+    DIR/records-damaged/          unreadable records set aside by a rerun (never deleted)
 
 A record holds ``schema``, ``run_id``, ``kind`` ("model" | "baseline"), ``config`` (the resolved
 config) and the body returned by ``loopzoo.engine.training.train_and_evaluate``: ``status``
@@ -17,6 +18,9 @@ from __future__ import annotations
 
 import hashlib
 import json
+import os
+import sys
+from datetime import datetime, timezone
 from importlib import resources
 from pathlib import Path
 from typing import Any
@@ -30,6 +34,8 @@ __all__ = [
     "SCHEMA",
     "CONFIG_VERSION",
     "MANIFEST",
+    "DAMAGED_DIR",
+    "DamagedRecord",
     "STATUSES",
     "KEPT_ON_RERUN",
     "BODY_FIELDS",
@@ -39,6 +45,7 @@ __all__ = [
     "failed_body",
     "write_record",
     "read_record",
+    "set_aside",
     "load_records",
     "is_done",
     "claim_out_dir",
@@ -51,6 +58,7 @@ SCHEMA = "loopzoo.run/1"
 # Bumped whenever a config key changes meaning, so old output directories are refused.
 CONFIG_VERSION = 1
 MANIFEST = "loopzoo-out.json"
+DAMAGED_DIR = "records-damaged"
 STATUSES = ("ok", "diverged", "failed")
 # A rerun keeps ok and diverged records (divergence is a deterministic outcome of config and
 # seed, so rerunning would only repeat it) and redoes failed ones (a failure may be transient).
@@ -117,17 +125,36 @@ def write_record(out: str | Path, record: dict[str, Any]) -> Path:
     return path
 
 
+class DamagedRecord(OutDirError):
+    """A record file that is not a JSON object (truncated, overwritten, not UTF-8)."""
+
+
 def read_record(path: str | Path) -> dict[str, Any]:
-    """Read one record, refusing files that are not records of this ``SCHEMA``."""
+    """Read one record, refusing files that are not records of this ``SCHEMA``.
+
+    Raises ``DamagedRecord`` for a file that is not a JSON object at all and ``OutDirError`` for
+    a record of another schema.
+    """
     path = Path(path)
     try:
         record = json.loads(path.read_text(encoding="utf-8"))
     except (OSError, UnicodeDecodeError, json.JSONDecodeError) as error:
-        raise OutDirError(f"{path}: not a readable run record ({error})") from None
-    if not isinstance(record, dict) or record.get("schema") != SCHEMA:
-        found = record.get("schema") if isinstance(record, dict) else type(record).__name__
-        raise OutDirError(f"{path}: record schema {found!r}, expected {SCHEMA!r}")
+        raise DamagedRecord(f"{path}: not a readable run record ({error})") from None
+    if not isinstance(record, dict):
+        raise DamagedRecord(f"{path}: not a run record (a JSON {type(record).__name__})")
+    if record.get("schema") != SCHEMA:
+        raise OutDirError(f"{path}: record schema {record.get('schema')!r}, expected {SCHEMA!r}")
     return record
+
+
+def set_aside(path: Path) -> Path:
+    """Move a damaged record to ``DIR/records-damaged/`` (kept, never deleted); its new path."""
+    folder = path.parent.parent / DAMAGED_DIR
+    folder.mkdir(parents=True, exist_ok=True)
+    stamp = datetime.now(timezone.utc).strftime("%Y%m%dT%H%M%S%fZ")
+    target = folder / f"{path.stem}.{stamp}{path.suffix}"
+    os.replace(path, target)
+    return target
 
 
 def load_records(out: str | Path) -> list[dict[str, Any]]:
@@ -139,11 +166,24 @@ def load_records(out: str | Path) -> list[dict[str, Any]]:
 
 
 def is_done(out: str | Path, run_id: str) -> dict[str, Any] | None:
-    """The existing record of ``run_id`` if a rerun keeps it (status in ``KEPT_ON_RERUN``)."""
+    """The existing record of ``run_id`` if a rerun keeps it (status in ``KEPT_ON_RERUN``).
+
+    A damaged record (not a JSON object) is set aside with a message naming both paths, and the
+    run counts as not done, so one bad file never blocks a sweep.
+    """
     path = record_path(out, run_id)
     if not path.exists():
         return None
-    record = read_record(path)
+    try:
+        record = read_record(path)
+    except DamagedRecord as error:
+        try:
+            aside = set_aside(path)
+        except FileNotFoundError:  # another job moved it first and said so
+            return None
+        print(f"{error}; moved to {aside} (kept) and the run is done again",
+              file=sys.stderr, flush=True)
+        return None
     return record if record.get("status") in KEPT_ON_RERUN else None
 
 

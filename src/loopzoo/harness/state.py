@@ -9,6 +9,7 @@ from __future__ import annotations
 import fcntl
 import json
 import os
+import uuid
 from collections.abc import Iterator
 from contextlib import contextmanager
 from pathlib import Path
@@ -17,7 +18,12 @@ from typing import Any
 from loopzoo._io import atomic_write_json
 from loopzoo.harness.errors import OutDirError
 
-__all__ = ["state_dir", "file_lock", "sweep_lock", "write_plan", "read_plan", "count_finished"]
+__all__ = [
+    "SWEEP_TOKEN", "state_dir", "file_lock", "sweep_lock", "write_plan", "read_plan",
+    "count_finished",
+]
+
+SWEEP_TOKEN = "LOOPZOO_SWEEP_TOKEN"  # environment variable: the sweep a job was launched by
 
 
 def state_dir(out: str | Path) -> Path:
@@ -54,9 +60,17 @@ def sweep_lock(out: str | Path) -> Iterator[None]:
         yield
 
 
-def write_plan(out: str | Path, total: int) -> None:
-    """Start a sweep's progress count at 0 of ``total``."""
-    atomic_write_json(state_dir(out) / "plan.json", {"total": total, "finished": []})
+def write_plan(out: str | Path, total: int) -> str:
+    """Start a sweep's progress count at 0 of ``total``; returns the sweep's token.
+
+    The launcher hands the token to each job it runs in the environment variable
+    ``SWEEP_TOKEN``; jobs of an earlier sweep whose parent was killed (orphaned workers still
+    finishing their runs) carry another token and are not counted in this plan.
+    """
+    token = uuid.uuid4().hex
+    atomic_write_json(state_dir(out) / "plan.json",
+                      {"total": total, "finished": [], "token": token})
+    return token
 
 
 def read_plan(out: str | Path) -> dict[str, Any] | None:
@@ -68,11 +82,15 @@ def read_plan(out: str | Path) -> dict[str, Any] | None:
 
 
 def count_finished(out: str | Path, outcome: dict[str, Any]) -> tuple[int, int] | None:
-    """Add ``outcome`` to the sweep plan; return (finished so far, total), or None if no plan."""
+    """Add ``outcome`` to the sweep plan; return (finished so far, total), or None if there is
+    no plan or the calling job belongs to another sweep."""
     with file_lock(state_dir(out) / "plan.lock"):
         plan = read_plan(out)
         if plan is None:
             return None
+        token = os.environ.get(SWEEP_TOKEN)
+        if token is not None and token != plan.get("token"):
+            return None  # a job of an earlier, killed sweep: not part of this plan
         plan["finished"].append(outcome)
         atomic_write_json(state_dir(out) / "plan.json", plan)
         return len(plan["finished"]), plan["total"]

@@ -97,9 +97,12 @@ def run_sweep(overrides: list[str]) -> int:
             f"out={plan.out}" + (f", suite={plan.suite}" if plan.suite else ""),
             flush=True,
         )
-        state.write_plan(plan.out, len(ids))
+        token = state.write_plan(plan.out, len(ids))
+        # Hydra sets hydra.job.env_set in each job's process before the job runs, also in
+        # reused workers; it is launcher configuration, not part of the job's config.
         argv = sys.argv
-        sys.argv = ["loopzoo", "--multirun", *overrides]
+        sys.argv = ["loopzoo", "--multirun", *overrides,
+                    f"+hydra.job.env_set.{state.SWEEP_TOKEN}={token}"]
         try:
             hydra_sweep_entry()
         finally:

@@ -31,16 +31,26 @@ def encode_sequences(sequences: Sequence[np.ndarray], labels: np.ndarray,
 
 
 def stratified_parts(labels: np.ndarray, fractions: dict[str, float],
-                     rng: np.random.Generator) -> dict[str, np.ndarray]:
+                     rng: np.random.Generator,
+                     names: Sequence[str] | None = None) -> dict[str, np.ndarray]:
     """Seeded split of item indices, each class divided in the given proportions.
 
     ``fractions`` gives the val and test shares; train takes the rest. Indices are sorted.
+    Every class must reach each part (at least one item in train, val and test): a class too
+    small for that is refused with a ``ValueError`` naming it (``names[label]`` if given).
     """
     parts: dict[str, list[int]] = {"train": [], "val": [], "test": []}
     for label in np.unique(labels):
         members = rng.permutation(np.flatnonzero(labels == label))
         n_val = round(len(members) * fractions["val"])
         n_test = round(len(members) * fractions["test"])
+        if min(n_val, n_test, len(members) - n_val - n_test) < 1:
+            name = repr(names[label]) if names is not None else f"number {label}"
+            raise ValueError(
+                f"class {name} has {len(members)} sequence(s): too few to appear in the "
+                f"train, val and test parts at val_fraction={fractions['val']} and "
+                f"test_fraction={fractions['test']}; add sequences of it or drop the class"
+            )
         parts["val"] += list(members[:n_val])
         parts["test"] += list(members[n_val : n_val + n_test])
         parts["train"] += list(members[n_val + n_test :])

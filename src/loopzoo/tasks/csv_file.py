@@ -208,14 +208,11 @@ class CsvClassTask(SequenceClassTask):
 
     def _make_splits(self) -> dict[str, Split]:
         rng = split_generators(self.name, self.seed)["train"]
-        parts = stratified_parts(self._labels, {"val": self.options.val_fraction,
-                                                "test": self.options.test_fraction}, rng)
-        empty = [name for name in SPLITS if parts[name].size == 0]
-        if empty:
-            raise ValueError(f"{self._source}: {len(self._sequences)} sequences are too few: the "
-                             f"{' and '.join(empty)} part would be empty with val_fraction="
-                             f"{self.options.val_fraction} and test_fraction="
-                             f"{self.options.test_fraction}")
+        fractions = {"val": self.options.val_fraction, "test": self.options.test_fraction}
+        try:
+            parts = stratified_parts(self._labels, fractions, rng, self.class_names)
+        except ValueError as error:
+            raise ValueError(f"{self._source}: {error}") from None
         self.input_scaler = Standardizer.fit(
             np.concatenate([self._sequences[i] for i in parts["train"]]))
         return {name: encode_sequences([self.input_scaler.transform(self._sequences[i])

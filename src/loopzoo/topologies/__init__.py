@@ -6,6 +6,7 @@ Importing a topology module registers it; every module follows the interface of
 
 from __future__ import annotations
 
+import os
 from typing import Any
 
 # Registration order is the order `available()` lists: the design's order, not alphabetical.
@@ -49,14 +50,39 @@ def create(name: str, **sizes_and_options: Any) -> RecurrentTopology:
     ('hidden-feedback', 'tanh')
     """
     builder = TOPOLOGIES.get(name)
+    need = _memory_need(name, sizes_and_options)
+    if need is not None:
+        raise _too_large(name, sizes_and_options, need)
     try:
         return builder(**sizes_and_options)
-    except (RuntimeError, MemoryError) as error:
-        # Sizes that pass their checks can still ask for more memory than there is.
+    except (RuntimeError, MemoryError) as error:  # fits the machine, but not what is free now
+        raise _too_large(name, sizes_and_options, _describe_count(name, sizes_and_options)) \
+            from error
+
+
+def _describe_count(name: str, sizes_and_options: dict[str, Any]) -> str:
+    count = parameter_count(name, **sizes_and_options)
+    return f"its {count:,} parameters ({4 * count / 2**30:,.1f} GiB as float32)"
+
+
+def _memory_need(name: str, sizes_and_options: dict[str, Any]) -> str | None:
+    """Why the parameters cannot fit in this machine's memory, or None if they can.
+
+    Counted on the meta device before anything is allocated, so an impossible size is refused
+    at once instead of after the allocator has claimed gigabytes.
+    """
+    try:
         count = parameter_count(name, **sizes_and_options)
-        sizes = ", ".join(f"{k}={v}" for k, v in sizes_and_options.items())
-        raise ValueError(
-            f"cannot build {name!r} with {sizes}: its {count:,} parameters "
-            f"({4 * count / 2**30:,.1f} GiB as float32) do not fit in memory; choose smaller "
-            "sizes (loopzoo.width_for_budget finds a hidden_size for a parameter budget)"
-        ) from error
+    except RuntimeError:  # even the tensors' byte counts overflow a 64-bit size
+        return "its parameters (more bytes than a 64-bit size can count)"
+    if 4 * count <= os.sysconf("SC_PAGE_SIZE") * os.sysconf("SC_PHYS_PAGES"):
+        return None
+    return f"its {count:,} parameters ({4 * count / 2**30:,.1f} GiB as float32)"
+
+
+def _too_large(name: str, sizes_and_options: dict[str, Any], need: str) -> ValueError:
+    sizes = ", ".join(f"{k}={v}" for k, v in sizes_and_options.items())
+    return ValueError(
+        f"cannot build {name!r} with {sizes}: {need} do not fit in memory; choose smaller "
+        "sizes (loopzoo.width_for_budget finds a hidden_size for a parameter budget)"
+    )

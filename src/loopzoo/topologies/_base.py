@@ -248,6 +248,7 @@ class RecurrentTopology(nn.Module):
         control flow so it exports with a dynamic batch.
         """
         x_t = self._check_input("x_t", x_t, ("B", self.input_size))
+        check_finite("x_t", x_t)
         state = self._check_state(state, x_t.shape[0])
         return self._step(x_t, state)
 
@@ -343,4 +344,5 @@ class RecurrentTopology(nn.Module):
                     f"{tuple(tensor.shape)}"
                 )
             self._check_dtype(name, tensor, dtype)
+            check_finite(name, tensor)
         return tuple(state)

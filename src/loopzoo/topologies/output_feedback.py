@@ -73,6 +73,12 @@ class OutputFeedback(RecurrentTopology):
     def __init__(self, **sizes_and_options: Any) -> None:
         super().__init__(**sizes_and_options)
         kind, fed_back = self.options["output_kind"], self.options["fed_back"]
+        if kind == "classes" and self.output_size < 2:
+            raise ValueError(
+                f"'output-feedback' with output_kind='classes' needs output_size >= 2 (one logit "
+                f"per class), got output_size={self.output_size}; use output_kind='real' for one "
+                "real output"
+            )
         if fed_back == "auto":
             fed_back = self.options["fed_back"] = _FED_BACK[kind][0]
         if fed_back not in _FED_BACK[kind]:
