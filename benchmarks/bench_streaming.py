@@ -26,7 +26,7 @@ import torch  # noqa: E402
 
 import loopzoo  # noqa: E402
 from loopzoo.export import export_bytes  # noqa: E402
-from loopzoo.streaming import StreamRunner  # noqa: E402
+from loopzoo.serve.streaming import StreamRunner  # noqa: E402
 
 INPUT_SIZE, OUTPUT_SIZE = 8, 4
 

@@ -5,7 +5,7 @@
 Prints one CSV line per reading as it is scored (``time_s, turbine, vibration_mm_s,
 predicted_next, z, alarm``): each turbine is its own stream in a ``StreamRunner``, so its state
 follows only its own readings. Uses only loopzoo's public API (``loopzoo.load``,
-``loopzoo.artifacts.read_description``, ``loopzoo.streaming.StreamRunner``).
+``loopzoo.serve.read_description``, ``loopzoo.serve.StreamRunner``).
 """
 
 from __future__ import annotations
@@ -17,8 +17,8 @@ import sys
 from turbine_stream import OUTPUT_COLUMNS, AlarmScorer, read_readings, scale
 
 import loopzoo
-from loopzoo.artifacts import read_description
-from loopzoo.streaming import StreamRunner
+from loopzoo.serve.artifacts import read_description
+from loopzoo.serve.streaming import StreamRunner
 
 
 def main(argv: list[str] | None = None) -> int:

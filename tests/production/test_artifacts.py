@@ -16,7 +16,7 @@ from safetensors.torch import load as safetensors_load
 from safetensors.torch import save as safetensors_save
 
 import loopzoo
-from loopzoo.artifacts import DESCRIPTION_FILE, WEIGHTS_FILE, ArtifactError, read_description
+from loopzoo.serve.artifacts import DESCRIPTION_FILE, WEIGHTS_FILE, ArtifactError, read_description
 
 
 def _outputs(model, seed=5):
@@ -273,7 +273,7 @@ def test_loading_and_streaming_need_only_torch_and_safetensors(build, tmp_path):
     loopzoo.save(build("hidden-feedback"), tmp_path / "artifact")
     script = (
         "import sys, loopzoo\n"
-        "from loopzoo.streaming import StreamRunner\n"
+        "from loopzoo.serve.streaming import StreamRunner\n"
         f"runner = StreamRunner(loopzoo.load({str(tmp_path / 'artifact')!r}))\n"
         "runner.start(0); runner.push(0, [0.0, 1.0, 2.0])\n"
         "heavy = {'lightning', 'hydra', 'onnx', 'onnxruntime', 'onnxscript', 'statsmodels',\n"
@@ -284,3 +284,16 @@ def test_loading_and_streaming_need_only_torch_and_safetensors(build, tmp_path):
         [sys.executable, "-c", script], capture_output=True, text=True, check=True, timeout=120
     )
     assert completed.stdout.strip() == "[]"
+
+
+def test_former_module_paths_still_import_the_same_objects():
+    import loopzoo.artifacts
+    import loopzoo.streaming
+    from loopzoo.streaming import StreamRunner
+
+    import loopzoo.serve
+
+    assert StreamRunner is loopzoo.serve.StreamRunner
+    assert loopzoo.streaming.StreamRunner is loopzoo.serve.StreamRunner
+    assert loopzoo.artifacts.ArtifactError is loopzoo.serve.ArtifactError
+    assert loopzoo.artifacts.load is loopzoo.load is loopzoo.serve.load

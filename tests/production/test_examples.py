@@ -11,8 +11,8 @@ from pathlib import Path
 import torch
 
 import loopzoo
-from loopzoo.artifacts import read_description
 from loopzoo.export import main as export_main
+from loopzoo.serve.artifacts import read_description
 
 EXAMPLES = Path(__file__).resolve().parents[2] / "examples"
 DEMO = EXAMPLES / "demo"

@@ -6,7 +6,7 @@ import pytest
 import torch
 from safetensors.torch import save as safetensors_save
 
-from loopzoo.streaming import StreamRunner
+from loopzoo.serve.streaming import StreamRunner
 
 # Batched and single-stream matrix products round differently in the last float32 bits, and
 # states that accumulate (residual-skip) grow past 1, hence a relative part too.

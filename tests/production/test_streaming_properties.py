@@ -9,7 +9,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 import loopzoo
-from loopzoo.streaming import StreamRunner
+from loopzoo.serve.streaming import StreamRunner
 
 STREAMS, STEPS = 4, 6
 

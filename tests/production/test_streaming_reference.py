@@ -11,7 +11,7 @@ from __future__ import annotations
 import pytest
 import torch
 
-from loopzoo.streaming import StreamRunner
+from loopzoo.serve.streaming import StreamRunner
 
 ATOL = 1e-5  # float32: torch.nn's fused kernels and the step's separate products round apart
 

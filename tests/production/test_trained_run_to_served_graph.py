@@ -15,7 +15,7 @@ import torch
 
 import loopzoo
 from loopzoo.export import onnx_runner
-from loopzoo.streaming import StreamRunner
+from loopzoo.serve.streaming import StreamRunner
 
 
 def _loopzoo(*args: str) -> None:

@@ -18,10 +18,10 @@ from typing import Any
 import torch
 
 from loopzoo import _io
-from loopzoo.artifacts import ArtifactError, load
 from loopzoo.export.graphs import graph_spec, graphs_for
 from loopzoo.export.parity import CHECK_BATCH_SIZES, CHECK_LENGTHS, max_error, runner_for
 from loopzoo.export.writers import FORMATS, SUFFIXES, export_bytes
+from loopzoo.serve.artifacts import ArtifactError, load
 
 __all__ = ["main", "MANIFEST_FILE"]
 
