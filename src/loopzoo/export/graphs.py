@@ -36,7 +36,9 @@ class _StepGraph(torch.nn.Module):
         self.model = model
 
     def forward(self, x_t: torch.Tensor, state: tuple[torch.Tensor, ...]):
-        y_t, next_state = self.model.step(x_t, tuple(state))
+        # ``_step``, not ``step``: step refuses NaN input by a data-dependent test that cannot be
+        # traced; the graph's typed, shaped inputs stand in for its other checks.
+        y_t, next_state = self.model._step(x_t, tuple(state))
         return (y_t, *next_state)
 
 
