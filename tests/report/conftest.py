@@ -140,6 +140,58 @@ def demo_records() -> list[dict[str, Any]]:
     return records
 
 
+# A second invented scenario, for the fields of the tuned protocol: a pottery workshop forecasts
+# kiln temperature ("kiln-heat", MSE). None of these numbers were measured.
+KILN_SHA = "3f1c9a7e5b2d4c6e8f0a1b2c3d4e5f60718293a4b5c6d7e8f9a0b1c2d3e4f5a6"
+KILN = {  # topology -> (options, test MSE per seed, val MSE per seed, trial scores, at bound, stop)
+    "gru": ({"num_layers": 1, "dropout": 0.0}, (0.020, 0.022, 0.021), (0.019, 0.018, 0.020),
+            (0.09, 0.03, 0.05, 0.021, 0.04, 0.06, 0.025, 0.08), [], "early_stop"),
+    "lstm": ({"num_layers": 1, "dropout": 0.0}, (0.030, 0.026, 0.034), (0.03, 0.027, 0.031),
+             (0.02, 0.2, 0.19, 0.18, 0.17, 0.21, 0.16, 0.22), ["lr"], "step_cap"),
+    "hidden-feedback": ({"nonlinearity": "relu"}, (0.16, 0.15, 0.17), (0.15, 0.15, 0.16),
+                        (0.3, 0.2, 0.25, 0.16, 0.18, 0.22, 0.3, 0.28), [], "early_stop"),
+}
+
+
+def kiln_records(sha: str = KILN_SHA) -> list[dict[str, Any]]:
+    """Records of the kiln scenario with every field the tuned protocol and classical rows add."""
+    records = []
+    data = {"files": [{"role": "path", "path": "kiln.csv", "sha256": sha, "bytes": 9120,
+                       "rows": 400}], "facts": {"rows": 400}}
+    for model, (options, tests, vals, trials, at_bound, stop) in KILN.items():
+        for seed in range(3):
+            run_id = f"kiln-heat-{model}-s{seed}-demo"
+            records.append(record(
+                task="kiln-heat", model=model, seed=seed, run_id=run_id,
+                config={"model": {"name": model, "options": options, "feedback": None},
+                        "task": {"name": "kiln-heat", "options": {"window": 24}}, "seed": seed},
+                metrics={"test": {"mse": tests[seed]}, "val": {"mse": vals[seed]}},
+                tuning={"trials": 8, "completed": 8, "sampler": "tpe", "pruner": None,
+                        "space": {"lr": {"low": 1e-4, "high": 0.3, "log": True}},
+                        "chosen": {"lr": 0.3 if at_bound else 0.004}, "at_bound": at_bound,
+                        "values": list(trials), "goal": "min", "study": f"kiln-{model}"},
+                convergence={"stopped": stop if seed < 2 else "early_stop", "best_step": 700,
+                             "steps": 800, "max_steps": 800},
+                reproduce=f"loopzoo train model={model} task=kiln-heat seed={seed} out=OUT",
+                artifact=f"runs/{run_id}/artifact",
+                data=data,
+            ))
+    for seed in range(3):
+        classical = dict(task="kiln-heat", seed=seed, kind="baseline", params=None, cost=None,
+                         gradient_reach=None, curves=None, budget=None, data=data,
+                         config={"task": {"name": "kiln-heat", "options": {"window": 24}}})
+        records.append(record(model="seasonal-arima", run_id=f"kiln-arima-s{seed}",
+                              metrics={"test": {"mse": 0.05}, "val": {"mse": 0.045}},
+                              seed_dependent=False, details={"order": [2, 1, 1]}, **classical))
+        records.append(record(model="ridge-lags", run_id=f"kiln-ridge-s{seed}", status="skipped",
+                              reason="series too short for 48 lags (train part has 40 points)",
+                              metrics={}, **classical))
+        records.append(record(model="noise-floor", run_id=f"kiln-floor-s{seed}",
+                              metrics={"test": {"mse": 0.004}}, **{**classical, "kind": "bound"},
+                              seed_dependent=False))
+    return records
+
+
 def write_records(directory: Path, records: list[dict[str, Any]]) -> Path:
     """Write ``records`` as ``directory/records/<run_id>.json``; returns ``directory``."""
     folder = directory / "records"
@@ -152,7 +204,8 @@ def write_records(directory: Path, records: list[dict[str, Any]]) -> Path:
 @pytest.fixture(scope="session")
 def demo() -> SimpleNamespace:
     """The demo helpers for tests (pytest's importlib mode cannot import conftest directly)."""
-    return SimpleNamespace(record=record, demo_records=demo_records, write_records=write_records)
+    return SimpleNamespace(record=record, demo_records=demo_records, write_records=write_records,
+                           kiln_records=kiln_records, kiln_sha=KILN_SHA)
 
 
 def _demo_out(out: Path) -> Path:

@@ -83,7 +83,7 @@ def test_markdown_names_statistics_alpha_and_skips(built_demo):
     assert "Welch's two-sided t-test" in markdown and "alpha = 0.05" in markdown
     assert "Student-t" in markdown
     assert "records/torn.json: not valid JSON" in markdown
-    assert "## Verdicts" in markdown and "Pick stacked" in markdown
+    assert "## Verdicts" in markdown and "Ship stacked" in markdown
     # No demo task has a baseline on top, so the extra comparison column stays out.
     assert "vs best topology" not in markdown
 

@@ -6,6 +6,7 @@ import re
 from collections.abc import Callable
 
 from loopzoo.report import formatting as fmt
+from loopzoo.report.budget import budget_curves, budgets
 from loopzoo.report.document import (
     Block,
     Bullets,
@@ -26,7 +27,8 @@ from loopzoo.report.results import (
     Summary,
     TaskSummary,
 )
-from loopzoo.report.verdict import task_verdict
+from loopzoo.report.stats import SEEDS_LIMIT
+from loopzoo.report.verdict import shipped_row, task_verdict
 
 __all__ = ["TITLE", "report_blocks"]
 
@@ -40,18 +42,30 @@ def _anchor(text: str) -> str:
 def _reading_guide(summary: Summary) -> Bullets:
     confidence = f"{summary.confidence:.0%}"
     return Bullets((
-        f"Quality is the task's primary test metric: mean over the seeds that finished ok, ± the "
-        f"half width of its {confidence} Student-t confidence interval. Diverged and failed runs "
-        "are counted, not averaged in.",
-        f"'vs best' is Welch's two-sided t-test (unequal variances) against the rank-1 row at "
-        f"alpha = {summary.alpha:g}: 'tie' means not significantly different and the row's mean "
-        "lies inside the best row's interval; 'inconclusive' means not significantly different "
-        "only because the row's seeds spread widely (no evidence of equal quality); 'untested' "
-        "means a side has fewer than 2 usable seeds.",
+        f"Quality is the task's primary test metric over the seeds that finished ok, with its "
+        f"{confidence} Student-t interval. Error metrics (mse, mae, cross-entropy, bits per "
+        "character) are summarised on the log scale: the geometric mean ×/÷ a factor, so the "
+        "interval stays above 0; other metrics show mean ± half width, cut to the metric's range "
+        "where it would leave it ([low, high]). Diverged, failed and skipped runs are counted, "
+        "not averaged in; a row whose value does not depend on the seed shows that one value.",
+        f"'vs best' is Welch's two-sided t-test (unequal variances) against the rank-1 row, on the "
+        f"log values for error metrics (a ratio of geometric means), with Holm's correction over "
+        f"all comparisons with that row at alpha = {summary.alpha:g}: 'worse' is significant "
+        f"after the correction; 'equivalent' means two one-sided tests put the pair within "
+        f"±{summary.margin:.0%} of the best (a ratio on the log scale) at alpha; 'n.s.' is "
+        "neither, which is no evidence of equal quality, and gives the seeds per row a t-test "
+        "would need to separate the pair at the observed spread (power 80%); 'untested' means a "
+        "side has fewer than 2 usable seeds.",
         "Output-feedback rows selected on free running are ranked on their free-running test "
         "metric (feeding back their own outputs); the exposure-bias table shows both figures.",
-        "Rank 1 is best; equal means share a rank. Classical baselines are ranked with the "
-        "topologies; the cross-task mean rank counts topologies only.",
+        "Rank 1 is best; equal values share a rank. Classical rows are ranked with the "
+        "topologies; bounds (exact optima, noise floors) are shown apart with the gap to them, "
+        "never ranked or recommended. The cross-task mean rank counts topologies only.",
+        "Flags mark rows that may be unconverged: runs stopped at the step cap, or a tuned value "
+        "at a bound of its searched range. The run to ship is chosen on validation, never on "
+        "test.",
+        "A row's label shows every option that differs from its topology's defaults "
+        "(name[option=value,...]).",
         "Costs are medians over ok runs: training wall time, time per training step, inference "
         "latency of one streaming step for one stream and for a batch of streams, peak memory.",
         "Gradient reach: the time lag at which the norm of dL/dh has fallen to 1/10 and 1/100 of "
@@ -61,46 +75,79 @@ def _reading_guide(summary: Summary) -> Bullets:
 
 
 def _versus(comparison: Comparison) -> str:
-    words = {"indistinguishable": "tie", "inconclusive": "inconclusive", "worse": "worse"}
-    if comparison.verdict in words:
-        return f"{words[comparison.verdict]} (p {fmt.p_value(comparison.p_value)})"
-    return {"best": "best", "untested": "untested"}.get(comparison.verdict, fmt.MISSING)
+    verdict = comparison.verdict
+    if verdict == "worse":
+        return f"worse (Holm p {fmt.p_value(comparison.adjusted_p)})"
+    if verdict == "equivalent":
+        return f"equivalent (TOST p {fmt.p_value(comparison.equivalence_p)})"
+    if verdict == "not significant":
+        seeds, observed = comparison.seeds_needed, comparison.difference
+        need = f"; >{SEEDS_LIMIT:,} seeds" if seeds is None else f"; ~{seeds} seeds"
+        if observed is not None and observed.statistic == 0.0:
+            need = "; no difference"
+        return f"n.s. (Holm p {fmt.p_value(comparison.adjusted_p)}{need})"
+    return {"best": "best", "untested": "untested"}.get(verdict, fmt.MISSING)
 
 
 def _yes_no(flag: bool | None) -> str:
     return fmt.MISSING if flag is None else "yes" if flag else "no"
 
 
+KIND_WORDS = {"model": "topology", "baseline": "classical", "bound": "bound"}
+
+
+def _value(row: Row) -> str:
+    if row.interval is None and row.counts["skipped"] and not row.counts["ok"]:
+        reasons = sorted({r.reason or "no reason recorded" for r in row.runs
+                          if r.status == "skipped"})
+        return "skipped: " + "; ".join(reasons)
+    return fmt.interval(row.interval)
+
+
 def _quality_table(task: TaskSummary) -> Table:
-    # When a classical baseline is best, also show how topologies stand against the best topology.
+    # When a classical row is best, also show how topologies stand against the best topology.
     baseline_best = task.best is not None and task.best.kind == "baseline"
-    rows = tuple(
-        (
-            row.label,
-            "topology" if row.kind == "model" else "baseline",
-            row.params,
-            fmt.interval(row.interval),
-            str(row.counts["ok"]),
-            str(row.counts["diverged"]),
-            str(row.counts["failed"]),
-            str(row.counts["missing"]),
-            fmt.number(row.rank) if row.rank else fmt.MISSING,
-            _versus(row.versus_best),
-            *((_versus(row.versus_pick),) if baseline_best else ()),
-            _yes_no(row.front_latency),
-        )
-        for row in task.rows
-    )
+    bound = task.bounds[0] if task.bounds else None
+    columns: list[tuple[str, bool, Callable[[Row], str]]] = [
+        ("row", False, lambda r: r.label),
+        ("kind", False, lambda r: KIND_WORDS[r.kind]),
+        ("params", True, lambda r: r.params),
+        (f"test {task.metric} ({_centre_words(task)})", True, _value),
+        ("ok", True, lambda r: str(r.counts["ok"])),
+        ("diverged", True, lambda r: str(r.counts["diverged"])),
+        ("failed", True, lambda r: str(r.counts["failed"])),
+        ("skipped", True, lambda r: str(r.counts["skipped"])),
+        ("ok without metric", True, lambda r: str(r.counts["missing"])),
+        ("rank", True, lambda r: fmt.number(r.rank) if r.rank else fmt.MISSING),
+        ("vs best", False,
+         lambda r: "bound (not ranked)" if r.kind == "bound" else _versus(r.versus_best)),
+    ]
+    if baseline_best:
+        columns.append(("vs best topology", False,
+                        lambda r: _versus(r.versus_pick) if r.kind == "model" else fmt.MISSING))
+    if bound is not None:
+        columns.append((f"gap to bound {bound.label}", True, lambda r: _bound_gap(r, bound, task)))
+    columns += [
+        ("flags", False, lambda r: "; ".join(r.flags) or fmt.MISSING),
+        ("Pareto (latency)", False, lambda r: _yes_no(r.front_latency)),
+    ]
     direction = "lower" if task.goal == "min" else "higher"
-    headers = ("row", "kind", "params", f"test {task.metric} (mean ± 95% CI)", "ok",
-               "diverged", "failed", "ok without metric", "rank", "vs best",
-               *(("vs best topology",) if baseline_best else ()), "Pareto (latency)")
     return Table(
         f"Quality on {task.label}: test {task.metric} ({direction} is better)",
-        headers,
-        rows,
-        (False, False, True, True, True, True, True, True, True) + (False,) * (len(headers) - 9),
+        tuple(title for title, _, _ in columns),
+        tuple(tuple(cell(row) for _, _, cell in columns) for row in task.rows),
+        tuple(numeric for _, numeric, _ in columns),
     )
+
+
+def _centre_words(task: TaskSummary) -> str:
+    return "geometric mean ×/÷ 95% CI factor" if task.scale == "log" else "mean ± 95% CI"
+
+
+def _bound_gap(row: Row, bound: Row, task: TaskSummary) -> str:
+    if row.kind == "bound" or row.interval is None or bound.interval is None:
+        return fmt.MISSING
+    return fmt.gap(row.interval.mean, bound.interval.mean, task.scale)
 
 
 def _cost_table(task: TaskSummary) -> Table | None:
@@ -163,12 +210,30 @@ def _exposure_table(task: TaskSummary) -> Table | None:
     )
 
 
+def _budget_table(task: TaskSummary) -> Table | None:
+    curves = budget_curves(task)
+    if not curves:
+        return None
+    shown = budgets(max(c.trials for c in curves))
+    return Table(
+        f"Tuning budget on {task.label}: expected best validation {task.metric} after n trials "
+        "(Dodge et al. 2019)",
+        ("topology", "trials", *(f"n = {n}" for n in shown)),
+        tuple(
+            (c.label, str(c.trials),
+             *(fmt.number(c.expected[n - 1]) if n <= c.trials else fmt.MISSING for n in shown))
+            for c in curves
+        ),
+        (False,) + (True,) * (len(shown) + 1),
+    )
+
+
 def _task_section(task: TaskSummary, figures: list[Figure]) -> list[Block]:
     blocks: list[Block] = [Heading(2, f"Task: {task.label}", _anchor(task.label))]
     goal = "minimise" if task.goal == "min" else "maximise"
     blocks.append(Paragraph(f"Ranked on test {task.metric or 'metric (none recorded)'}; {goal}."))
     builders: tuple[Callable[[TaskSummary], Table | None], ...] = (
-        _cost_table, _reach_table, _exposure_table
+        _budget_table, _cost_table, _reach_table, _exposure_table
     )
     blocks.append(_quality_table(task))
     blocks.extend(table for build in builders if (table := build(task)) is not None)
@@ -179,8 +244,20 @@ def _task_section(task: TaskSummary, figures: list[Figure]) -> list[Block]:
     return blocks
 
 
+def _classical_wins(summary: Summary) -> Paragraph:
+    shipped = [(task, shipped_row(task, summary.alpha)) for task in summary.tasks]
+    decided = [(task, row) for task, row in shipped if row is not None and task.metric]
+    classical = [(task, row) for task, row in decided if row.kind == "baseline"]
+    listed = "; ".join(f"{task.label}: {row.label}" for task, row in classical)
+    return Paragraph(
+        f"A classical row is the one to ship on {len(classical)} of {len(decided)} task(s) with a "
+        f"verdict (it had the best value, or no topology was significantly better than it)"
+        + (f": {listed}." if classical else ".")
+    )
+
+
 def _overall_section(summary: Summary, figure: Figure | None) -> list[Block]:
-    blocks: list[Block] = [Heading(2, "Across tasks", "across-tasks")]
+    blocks: list[Block] = [Heading(2, "Across tasks", "across-tasks"), _classical_wins(summary)]
     if not summary.overall:
         return [*blocks, Paragraph("No topology has results.")]
     blocks.append(Table(
@@ -223,7 +300,7 @@ def report_blocks(summary: Summary) -> list[Block]:
     ]
     for task in summary.tasks:
         blocks.append(Heading(3, task.label))
-        blocks.append(Paragraph(" ".join(task_verdict(task, summary.alpha))))
+        blocks.append(Paragraph(" ".join(task_verdict(task, summary.alpha, summary.margin))))
     for task in summary.tasks:
         blocks.extend(_task_section(task, task_figures(task, styles)))
     blocks.extend(_overall_section(summary, overall_figure(summary, styles)))

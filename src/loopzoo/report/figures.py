@@ -17,7 +17,9 @@ import matplotlib
 from matplotlib.axes import Axes
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure as MplFigure
+from matplotlib.ticker import ScalarFormatter
 
+from loopzoo.report.budget import budget_curves
 from loopzoo.report.document import Figure
 from loopzoo.report.loading import finite_number
 from loopzoo.report.reach import relative_norms
@@ -174,14 +176,16 @@ def _quality_panel(axes: Axes, task: TaskSummary, rows: Sequence[Row], styles: d
             continue
         points.append((x, row.interval.mean, row.label))
         style = styles[row.label]
-        half = row.interval.half_width or 0.0
-        axes.errorbar([x], [row.interval.mean], yerr=[[half], [half]], color=style.colour,
+        centre, low, high = row.interval.mean, row.interval.low, row.interval.high
+        below, above = (0.0, 0.0) if low is None or high is None else (centre - low, high - centre)
+        axes.errorbar([x], [centre], yerr=[[below], [above]], color=style.colour,
                       marker=style.marker, linestyle="none", capsize=3, label=row.label, zorder=3)
         flag = row.front_latency if attribute == "latency" else row.front_params
         if flag:
             front.append((x, row.interval.mean))
     if front:
         _front_line(axes, front)
+    _bound_lines(axes, task)
     scale = ", log scale" if _x_scale(axes, points) else ""
     direction = "lower" if task.goal == "min" else "higher"
     axes.set_ylabel(f"test {task.metric} ({direction} is better; bar: 95% CI)")
@@ -191,6 +195,14 @@ def _quality_panel(axes: Axes, task: TaskSummary, rows: Sequence[Row], styles: d
     else:
         axes.set_xlabel(f"trainable parameters (count{scale})")
         axes.set_title("quality against size")
+
+
+def _bound_lines(axes: Axes, task: TaskSummary) -> None:
+    """A horizontal line per bound (never a point: bounds are not rows one could pick)."""
+    for bound in task.bounds:
+        assert bound.interval is not None
+        axes.axhline(bound.interval.mean, color="#888888", linestyle=(0, (1, 1)), linewidth=1.2,
+                     label=f"bound: {bound.label}")
 
 
 def _quality_versus_cost(task: TaskSummary, styles: dict[str, Style]) -> Figure | None:
@@ -266,13 +278,46 @@ def _gradient_by_lag(task: TaskSummary, styles: dict[str, Style]) -> Figure | No
     )
 
 
+def _budget_figure(task: TaskSummary, styles: dict[str, Style]) -> Figure | None:
+    curves = budget_curves(task)
+    if not curves:
+        return None
+    with _figure(8.0, 4.0, 1) as (figure, (axes,)):
+        values = []
+        for curve in curves:
+            style = styles[curve.label]
+            budgets = list(range(1, curve.trials + 1))
+            values.extend(curve.expected)
+            axes.plot(budgets, curve.expected, color=style.colour, linestyle=style.dash,
+                      marker=style.marker, markersize=4, markevery=max(1, curve.trials // 8),
+                      label=f"{curve.label} ({curve.trials} trials)")
+        if min(values) > 0 and max(values) / min(values) > 20:
+            axes.set_yscale("log")
+        axes.set_xscale("log", base=2)
+        axes.xaxis.set_major_formatter(ScalarFormatter())
+        axes.set_xlabel("tuning budget (trials, log scale)")
+        axes.set_ylabel(f"expected best validation {task.metric}")
+        axes.set_title(f"{task.label}: expected best validation score against tuning budget")
+        axes.legend(loc="best")
+        png = _png(figure)
+    return Figure(
+        png,
+        f"Expected best validation {task.metric} against the number of tuning trials per topology "
+        f"on {task.label}.",
+        f"{task.label}: expected best validation {task.metric} after n trials, from each "
+        "topology's observed trial scores (Dodge et al. 2019, 'Show Your Work').",
+    )
+
+
 def task_figures(task: TaskSummary, styles: dict[str, Style]) -> list[Figure]:
     """The pictures of one task that its records allow (learning curves, quality against cost,
-    gradient reach); a picture with no data is left out rather than drawn empty."""
+    gradient reach, expected best score against tuning budget); a picture with no data is left
+    out rather than drawn empty."""
     candidates = (
         _learning_curves(task, styles),
         _quality_versus_cost(task, styles),
         _gradient_by_lag(task, styles),
+        _budget_figure(task, styles),
     )
     return [figure for figure in candidates if figure is not None]
 

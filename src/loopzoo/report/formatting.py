@@ -4,9 +4,12 @@ from __future__ import annotations
 
 import math
 
-from loopzoo.report.stats import Interval
+from loopzoo.report.stats import Difference, Interval
 
-__all__ = ["MISSING", "number", "interval", "lag", "p_phrase", "p_value", "ratio"]
+__all__ = [
+    "MISSING", "difference", "gap", "interval", "lag", "number", "p_phrase", "p_value", "ratio",
+    "seeds_phrase",
+]
 
 MISSING = "—"
 
@@ -22,12 +25,48 @@ def number(value: float | None, digits: int = 4) -> str:
 
 
 def interval(value: Interval | None) -> str:
-    """``'mean ± half width'``, or the mean alone with ``(1 seed)`` when there is no interval."""
+    """``'mean ± half width'`` (raw scale), ``'geometric mean ×/÷ factor'`` (log scale),
+    ``'mean [low, high]'`` (clipped to the metric's range), ``'value (same for every seed)'`` for a
+    seed-independent row, or the mean with ``(1 seed)`` when there is no interval."""
     if value is None:
         return MISSING
-    if value.half_width is None:
+    if value.exact:
+        return f"{number(value.mean)} (same for every seed)"
+    if value.low is None or value.high is None:
         return f"{number(value.mean)} (1 seed)"
+    if value.factor is not None:
+        return f"{number(value.mean)} ×/÷ {number(value.factor, 3)}"
+    if value.half_width is None:
+        return f"{number(value.mean)} [{number(value.low, 3)}, {number(value.high, 3)}]"
     return f"{number(value.mean)} ± {number(value.half_width, 2)}"
+
+
+def difference(value: Difference | None, confidence: float = 0.95) -> str:
+    """A row against its reference: ``'ratio 3.2 (95% CI 1.4 to 7.1)'`` on the log scale (a
+    ratio of geometric means), ``'difference +0.012 (95% CI ...)'`` on the raw scale."""
+    if value is None:
+        return MISSING
+    level = f"{confidence:.0%} CI"
+    if value.scale == "log":
+        return (f"ratio {number(value.estimate, 3)} ({level} {number(value.low, 3)} to "
+                f"{number(value.high, 3)})")
+    return (f"difference {value.estimate:+.3g} ({level} {value.low:+.3g} to "
+            f"{value.high:+.3g})")
+
+
+def seeds_phrase(seeds: int | None, limit: int, observed: Difference | None) -> str:
+    """How many seeds per row would separate a pair: ``'about 14 seeds per row'``; nothing to
+    separate when the observed difference is exactly 0."""
+    if observed is not None and observed.statistic == 0.0:
+        return "no number of seeds (the observed difference is 0)"
+    return f"more than {limit:,} seeds per row" if seeds is None else f"about {seeds} seeds per row"
+
+
+def gap(value: float, bound: float, scale: str) -> str:
+    """A row's distance to a bound: ``'1.3x'`` on the log scale, ``'+0.012'`` on the raw scale."""
+    if scale == "log" and bound > 0.0:
+        return f"{number(value / bound, 3)}x"
+    return f"{value - bound:+.3g}"
 
 
 def lag(value: float | None) -> str:

@@ -14,6 +14,9 @@ from loopzoo._registry import unknown_choice
 
 __all__ = [
     "KINDS",
+    "Convergence",
+    "DataFile",
+    "Tuning",
     "RECORD_SCHEMA",
     "STATUSES",
     "ReportInputError",
@@ -25,12 +28,46 @@ __all__ = [
 ]
 
 RECORD_SCHEMA = "loopzoo.run/1"
-STATUSES = ("ok", "diverged", "failed")
-KINDS = ("model", "baseline")
+STATUSES = ("ok", "diverged", "failed", "skipped")
+# "bound": an exact optimum or noise floor, shown apart and never ranked or recommended.
+KINDS = ("model", "baseline", "bound")
 
 
 class ReportInputError(ValueError):
     """The report cannot be built from this directory (missing, or no usable records)."""
+
+
+@dataclass(frozen=True)
+class Tuning:
+    """The record's ``tuning`` field: the trial budget, what was searched and chosen, and the
+    validation score of every complete trial (``values``, in trial order)."""
+
+    trials: int | None
+    completed: int | None
+    sampler: str | None
+    chosen: Mapping[str, Any]
+    at_bound: tuple[str, ...]
+    values: tuple[float, ...]
+
+
+@dataclass(frozen=True)
+class Convergence:
+    """The record's ``convergence`` field: why training stopped (``early_stop``, ``step_cap``,
+    ``diverged``) and at which steps."""
+
+    stopped: str | None
+    best_step: int | None
+    steps: int | None
+    max_steps: int | None
+
+
+@dataclass(frozen=True, order=True)
+class DataFile:
+    """One user file a run read (``data.files``): its role (the task option), path and hash."""
+
+    role: str
+    path: str
+    sha256: str
 
 
 @dataclass(frozen=True)
@@ -40,6 +77,9 @@ class Run:
     ``source`` is the file's path relative to the output directory. ``task_variant`` and
     ``row_variant`` hold the settings that separate otherwise same-named tasks / rows (task
     options; model options, feedback and budget), as sorted ``(dotted key, JSON value)`` pairs.
+    ``options`` are the model's constructor options (``config.model.options`` with the tuned
+    values of ``tuning.chosen`` over them). Fields that older records lack are None
+    (``seed_dependent`` True): the report says "not recorded".
     """
 
     source: str
@@ -61,6 +101,14 @@ class Run:
     finished: str
     task_variant: tuple[tuple[str, str], ...]
     row_variant: tuple[tuple[str, str], ...]
+    options: Mapping[str, Any]
+    tuning: Tuning | None
+    convergence: Convergence | None
+    reproduce: str | None
+    artifact: str | None
+    seed_dependent: bool
+    details: Mapping[str, Any] | None
+    data_files: tuple[DataFile, ...] | None
 
 
 @dataclass(frozen=True)
@@ -126,13 +174,79 @@ def _primary(record: Mapping[str, Any]) -> tuple[str, str] | None:
     return primary["name"], primary["goal"]
 
 
+def _integer(value: object) -> int | None:
+    return value if isinstance(value, int) and not isinstance(value, bool) else None
+
+
+def _text(value: object) -> str | None:
+    return value if isinstance(value, str) and value else None
+
+
+def _tuning(record: Mapping[str, Any]) -> Tuning | None:
+    tuning = _mapping_or_none(record, "tuning")
+    if tuning is None:
+        return None
+    values = tuning.get("values")
+    scores = tuple(
+        v for v in (finite_number(x) for x in (values if isinstance(values, list) else []))
+        if v is not None
+    )
+    chosen = tuning.get("chosen")
+    at_bound = tuning.get("at_bound")
+    return Tuning(
+        trials=_integer(tuning.get("trials")),
+        completed=_integer(tuning.get("completed")),
+        sampler=_text(tuning.get("sampler")),
+        chosen=chosen if isinstance(chosen, Mapping) else {},
+        at_bound=tuple(str(n) for n in at_bound) if isinstance(at_bound, list) else (),
+        values=scores,
+    )
+
+
+def _convergence(record: Mapping[str, Any]) -> Convergence | None:
+    convergence = _mapping_or_none(record, "convergence")
+    if convergence is None:
+        return None
+    return Convergence(
+        stopped=_text(convergence.get("stopped")),
+        best_step=_integer(convergence.get("best_step")),
+        steps=_integer(convergence.get("steps")),
+        max_steps=_integer(convergence.get("max_steps")),
+    )
+
+
+def _data_files(record: Mapping[str, Any]) -> tuple[DataFile, ...] | None:
+    data = _mapping_or_none(record, "data")
+    files = None if data is None else data.get("files")
+    if not isinstance(files, list):
+        return None
+    found = []
+    for entry in files:
+        if isinstance(entry, Mapping) and _text(entry.get("sha256")):
+            role = _text(entry.get("role")) or _text(entry.get("path")) or "file"
+            found.append(DataFile(role, _text(entry.get("path")) or role, entry["sha256"]))
+    return tuple(sorted(found, key=lambda f: (f.role, f.path)))
+
+
+def _options(record: Mapping[str, Any], tuning: Tuning | None) -> dict[str, Any]:
+    config = record.get("config")
+    model = config.get("model") if isinstance(config, Mapping) else None
+    options = model.get("options") if isinstance(model, Mapping) else None
+    merged = dict(options) if isinstance(options, Mapping) else {}
+    if tuning is not None:
+        # Tuned values are what was trained; names the topology does not take (the optimiser's
+        # learning rate, weight decay) are filtered out where the label is made.
+        merged.update(tuning.chosen)
+    return merged
+
+
 def _variants(record: Mapping[str, Any], kind: str) -> tuple[tuple, tuple]:
     config = record.get("config")
     config = config if isinstance(config, Mapping) else {}
     task_config = config.get("task")
     task_options = task_config.get("options") if isinstance(task_config, Mapping) else None
     task_variant = tuple(_flatten("", task_options or {}))
-    if kind == "baseline":
+    if kind != "model":
         return task_variant, ()
     model_config = config.get("model")
     model_config = model_config if isinstance(model_config, Mapping) else {}
@@ -163,6 +277,7 @@ def parse_run(record: object, source: str) -> Run:
     task_variant, row_variant = _variants(record, kind)
     reason = record.get("reason")
     finished = record.get("finished")
+    tuning = _tuning(record)
     return Run(
         source=source,
         run_id=_text_field(record, "run_id"),
@@ -183,6 +298,14 @@ def parse_run(record: object, source: str) -> Run:
         finished=finished if isinstance(finished, str) else "",
         task_variant=task_variant,
         row_variant=row_variant,
+        options=_options(record, tuning) if kind == "model" else {},
+        tuning=tuning,
+        convergence=_convergence(record),
+        reproduce=_text(record.get("reproduce")),
+        artifact=_text(record.get("artifact")),
+        seed_dependent=record.get("seed_dependent") is not False,
+        details=_mapping_or_none(record, "details"),
+        data_files=_data_files(record),
     )
 
 

@@ -1,4 +1,5 @@
-"""Ranks, comparisons with the best row (Welch) and Pareto flags within one task."""
+"""Ranks, comparisons with a reference row (Welch on the task's scale, Holm across the family,
+two one-sided tests for equivalence) and Pareto flags within one task."""
 
 from __future__ import annotations
 
@@ -6,19 +7,17 @@ from collections.abc import Sequence
 
 from loopzoo.report.pareto import pareto_front
 from loopzoo.report.results import LATENCY_FIELD, Comparison, Row
-from loopzoo.report.stats import welch_test
+from loopzoo.report.stats import Difference, equivalence_p, holm, seeds_needed, welch
 
-__all__ = ["compare", "competition_ranks", "fronts"]
+__all__ = ["compare_family", "competition_ranks", "fronts", "pair_test"]
 
 
 def competition_ranks(rows: Sequence[Row], goal: str) -> dict[tuple[str, str], int]:
-    """Rank rows with a value: 1 is best; equal means share the better rank ("1224").
-
-    The dict is in ranked order: better mean first, then more seeds, then name.
-    """
+    """Rank rows with a value, bounds excepted: 1 is best; equal centres share the better rank
+    ("1224"). The dict is in ranked order: better centre first, then more seeds, then name."""
     sign = 1.0 if goal == "min" else -1.0
     ranked = sorted(
-        (r for r in rows if r.interval),
+        (r for r in rows if r.interval and r.kind != "bound"),
         key=lambda r: (sign * r.interval.mean, -r.interval.n, r.key),
     )
     ranks: dict[tuple[str, str], int] = {}
@@ -29,23 +28,58 @@ def competition_ranks(rows: Sequence[Row], goal: str) -> dict[tuple[str, str], i
     return ranks
 
 
-def compare(row: Row, best: Row | None, alpha: float) -> Comparison:
-    """Welch's two-sided test of ``row`` against ``best`` at ``alpha`` (see :class:`Comparison`)."""
-    if row.interval is None or best is None:
-        return Comparison("no data", None)
-    if row.key == best.key:
-        return Comparison("best", None)
-    result = welch_test(row.values, best.values)
-    if result is None:
-        return Comparison("untested", None)
-    if result.p_value < alpha:
-        return Comparison("worse", result.p_value)
-    # Not separated by Welch. Call it a tie only when the row's mean lies inside the best row's
-    # interval; otherwise the test merely lacked power (the row's seeds spread widely).
-    assert row.interval is not None and best.interval is not None
-    low, high = best.interval.low, best.interval.high
-    inside = low is not None and high is not None and low <= row.interval.mean <= high
-    return Comparison("indistinguishable" if inside else "inconclusive", result.p_value)
+def pair_test(row: Row, reference: Row, scale: str, confidence: float) -> Difference | None:
+    """Welch's test of ``row`` against ``reference`` on ``scale`` (None when untestable)."""
+    return welch(row.values, reference.values, scale, confidence,
+                 exact_a=row.exact, exact_b=reference.exact)
+
+
+def _spread(row: Row) -> float | None:
+    return None if row.exact or row.interval is None else row.interval.std
+
+
+def compare_family(
+    rows: Sequence[Row],
+    reference: Row | None,
+    scale: str,
+    alpha: float,
+    margin: float,
+    confidence: float,
+) -> dict[tuple[str, str], Comparison]:
+    """Every row's :class:`Comparison` with ``reference``; Holm's correction runs over the rows
+    that could be tested, so the chance of calling any equal row worse stays at most alpha."""
+    found: dict[tuple[str, str], Comparison] = {}
+    tests = {}
+    for row in rows:
+        if row.interval is None or reference is None or reference.interval is None:
+            found[row.key] = Comparison("no data", None)
+        elif row.key == reference.key:
+            found[row.key] = Comparison("best", None)
+        elif (result := pair_test(row, reference, scale, confidence)) is None:
+            found[row.key] = Comparison("untested", None)
+        else:
+            tests[row.key] = (row, result)
+    adjusted = dict(zip(tests, holm([result.p_value for _, result in tests.values()]),
+                        strict=True))
+    for key, (row, result) in tests.items():
+        assert reference is not None and row.interval is not None
+        equivalent = equivalence_p(row.values, reference.values, margin, scale,
+                                   exact_a=row.exact, exact_b=reference.exact)
+        if adjusted[key] < alpha:
+            verdict = "worse"
+        elif equivalent is not None and equivalent < alpha:
+            verdict = "equivalent"
+        else:
+            verdict = "not significant"
+        needed = None
+        spread, other = _spread(row), _spread(reference)
+        if spread is None:  # an exact row against a seed-dependent reference
+            spread, other = other, None
+        if verdict == "not significant" and spread is not None:
+            difference = row.interval.centre - reference.interval.centre
+            needed = seeds_needed(difference, spread, other, alpha)
+        found[key] = Comparison(verdict, result.p_value, adjusted[key], result, equivalent, needed)
+    return found
 
 
 def fronts(rows: Sequence[Row], goal: str, attribute: str) -> dict[tuple[str, str], bool]:

@@ -6,8 +6,8 @@ from __future__ import annotations
 from collections.abc import Mapping
 from dataclasses import dataclass
 
-from loopzoo.report.loading import Run, Skipped
-from loopzoo.report.stats import Interval
+from loopzoo.report.loading import Run, Skipped, Tuning
+from loopzoo.report.stats import Difference, Interval
 
 __all__ = [
     "COST_FIELDS",
@@ -37,13 +37,24 @@ REACH_PHASES = (("init", "at init"), ("final", "trained"))
 
 @dataclass(frozen=True)
 class Comparison:
-    """How a row stands against the best row: ``best``; ``indistinguishable`` (Welch p >= alpha
-    and the row's mean inside the best row's interval); ``inconclusive`` (p >= alpha but the mean
-    outside it: the seeds spread too widely to tell); ``worse`` (p < alpha); ``untested`` (fewer
-    than 2 values on a side); or ``no data``."""
+    """How a row stands against a reference row (the best row, or the best topology).
+
+    ``verdict``: ``best`` (the reference itself); ``worse`` (Welch's test on the task's scale,
+    significant after Holm's correction over the comparisons with that reference);
+    ``equivalent`` (not significant and two one-sided tests show the pair inside the stated
+    margin); ``not significant`` (neither: no evidence of a difference, and none of equal
+    quality); ``untested`` (fewer than 2 values on a side); ``no data``.
+    ``difference`` is row against reference (a ratio of geometric means on the log scale),
+    ``adjusted_p`` Holm's, ``seeds_needed`` the seeds per row a t-test would need to separate the
+    pair at the observed spread (None: no difference observed, or more than the search limit).
+    """
 
     verdict: str
     p_value: float | None
+    adjusted_p: float | None = None
+    difference: Difference | None = None
+    equivalence_p: float | None = None
+    seeds_needed: int | None = None
 
 
 @dataclass(frozen=True)
@@ -58,10 +69,14 @@ class Exposure:
 
 @dataclass(frozen=True)
 class Row:
-    """One topology (kind ``model``) or classical baseline (kind ``baseline``) on one task.
+    """One topology (kind ``model``), classical row (``baseline``) or bound (``bound``: an exact
+    optimum or noise floor, never ranked) on one task.
 
     ``versus_best`` compares with the best row of the task, ``versus_pick`` (topologies only) with
-    the best topology; they differ when a classical baseline is best.
+    the best topology; they differ when a classical row is best. ``exact``: the value does not
+    depend on the seed (one value, no interval). ``flags`` say why the row may be unconverged
+    (runs stopped at the step cap, a tuned value at a bound of its range). ``ship`` is the ok run
+    with the best validation score (never chosen on test).
     """
 
     kind: str
@@ -70,6 +85,10 @@ class Row:
     counts: Mapping[str, int]
     values: tuple[float, ...]
     interval: Interval | None
+    exact: bool
+    flags: tuple[str, ...]
+    tuning: Tuning | None
+    ship: Run | None
     params: str
     params_value: float | None
     rank: int | None
@@ -95,6 +114,7 @@ class TaskSummary:
     label: str
     metric: str | None
     goal: str
+    scale: str
     rows: tuple[Row, ...]
     gaps: tuple[str, ...]
 
@@ -102,6 +122,13 @@ class TaskSummary:
     def best(self) -> Row | None:
         """The first rank-1 row (ties: more seeds first), None when no row has a usable value."""
         return next((row for row in self.rows if row.rank == 1), None)
+
+    @property
+    def bounds(self) -> tuple[Row, ...]:
+        """The bound rows with a value, tightest first (shown apart, never ranked)."""
+        found = [r for r in self.rows if r.kind == "bound" and r.interval]
+        sign = 1.0 if self.goal == "min" else -1.0
+        return tuple(sorted(found, key=lambda r: (-sign * r.interval.mean, r.label)))
 
 
 @dataclass(frozen=True)
@@ -126,3 +153,4 @@ class Summary:
     skipped: tuple[Skipped, ...]
     alpha: float
     confidence: float
+    margin: float

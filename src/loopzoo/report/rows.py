@@ -1,5 +1,6 @@
-"""One row of a task table from its runs: seeds, counts, quality, cost, gradient reach and the
-exposure-bias figures, with a plain sentence for everything that is missing."""
+"""One row of a task table from its runs: seeds, counts, quality, cost, gradient reach, the
+exposure-bias figures, convergence flags and the run to ship, with a plain sentence for everything
+that is missing."""
 
 from __future__ import annotations
 
@@ -8,7 +9,7 @@ from collections import Counter, defaultdict
 from collections.abc import Mapping, Sequence
 from typing import Any
 
-from loopzoo.report.loading import Run, finite_number
+from loopzoo.report.loading import Run, Tuning, finite_number
 from loopzoo.report.reach import reach_lag
 from loopzoo.report.results import (
     COST_FIELDS,
@@ -18,9 +19,11 @@ from loopzoo.report.results import (
     Exposure,
     Row,
 )
-from loopzoo.report.stats import Interval, mean_interval
+from loopzoo.report.stats import Interval, interval, mean_interval, metric_limits
 
-__all__ = ["build_row", "ranked_split"]
+__all__ = ["build_row", "ranked_split", "row_interval", "validation_score"]
+
+STATUS_COUNTS = ("ok", "diverged", "failed", "skipped", "missing")
 
 
 def _latest_per_seed(runs: list[Run], row_label: str, gaps: list[str]) -> list[Run]:
@@ -55,6 +58,21 @@ def ranked_split(run: Run) -> str:
     if feedback.get("selected_on") == "free_running" and "test_free_running" in run.metrics:
         return "test_free_running"
     return "test"
+
+
+def validation_score(run: Run, metric: str | None) -> float | None:
+    """The run's validation figure matching its ranked test figure (``val`` or
+    ``val_free_running``): what the run to ship is chosen on."""
+    return _metric(run, ranked_split(run).replace("test", "val", 1), metric)
+
+
+def row_interval(
+    values: Sequence[float], exact: bool, scale: str, metric: str | None, confidence: float
+) -> Interval | None:
+    """The row's interval on the task's analysis ``scale``, inside the metric's range."""
+    if not values:
+        return None
+    return interval(values, scale, confidence, metric_limits(metric), exact=exact)
 
 
 def _median(values: Sequence[float]) -> float | None:
@@ -145,7 +163,9 @@ def _row_gaps(row_label: str, runs: Sequence[Run], metric: str | None, gaps: lis
     for run in runs:
         where = f"{row_label}: seed {run.seed}"
         reason = f": {run.reason}" if run.reason else " (no reason recorded)"
-        if run.status == "diverged":
+        if run.status == "skipped":
+            gaps.append(f"{where} skipped{reason}")
+        elif run.status == "diverged":
             at = f" at step {run.diverged_at_step}" if run.diverged_at_step is not None else ""
             gaps.append(f"{where} diverged{at}{reason}")
         elif run.status == "failed":
@@ -154,12 +174,61 @@ def _row_gaps(row_label: str, runs: Sequence[Run], metric: str | None, gaps: lis
             gaps.append(f"{where} is ok but has no finite test {metric or 'metric'} ({run.source})")
 
 
+def _exact(label: str, ok_runs: Sequence[Run], values: Sequence[float], gaps: list[str]) -> bool:
+    """Whether the row's value does not depend on the seed (``seed_dependent: false``)."""
+    if not ok_runs or any(r.seed_dependent for r in ok_runs):
+        return False
+    if len(set(values)) > 1:
+        gaps.append(
+            f"{label}: recorded as not depending on the seed, yet its values differ across "
+            "seeds; treated as seed-dependent"
+        )
+        return False
+    return True
+
+
+def _flags(runs: Sequence[Run]) -> tuple[str, ...]:
+    """Why a row may be unconverged: runs stopped at the step cap, tuned values at a bound."""
+    flags = []
+    capped = [r for r in runs if r.convergence and r.convergence.stopped == "step_cap"]
+    recorded = [r for r in runs if r.convergence and r.convergence.stopped]
+    if capped:
+        flags.append(f"{len(capped)} of {len(recorded)} runs stopped at the step cap")
+    at_bound = sorted({name for r in runs if r.tuning for name in r.tuning.at_bound})
+    if at_bound:
+        own = "its" if len(at_bound) == 1 else "their"
+        flags.append(f"tuned {', '.join(at_bound)} at a bound of {own} range")
+    return tuple(flags)
+
+
+def _ship(ok_runs: Sequence[Run], metric: str | None, goal: str) -> Run | None:
+    """The ok run with the best validation score (ties: lower seed); None without any."""
+    scored = [(v, r.seed, r) for r in ok_runs if (v := validation_score(r, metric)) is not None]
+    if not scored:
+        return None
+    sign = 1.0 if goal == "min" else -1.0
+    return min(scored, key=lambda item: (sign * item[0], item[1]))[2]
+
+
+def _tuning(runs: Sequence[Run]) -> Tuning | None:
+    """The row's tuning record: the latest finished run's (one study serves every seed)."""
+    tuned = [r for r in runs if r.tuning is not None]
+    return max(tuned, key=lambda r: (r.finished, r.run_id)).tuning if tuned else None
+
+
 def build_row(
-    kind: str, label: str, runs: list[Run], metric: str | None, confidence: float, gaps: list[str]
+    kind: str,
+    label: str,
+    runs: list[Run],
+    metric: str | None,
+    goal: str,
+    confidence: float,
+    gaps: list[str],
 ) -> Row:
     """The row ``label`` from its runs (one per seed kept), appending what is missing to ``gaps``.
 
-    Rank, comparisons and Pareto flags are left unset; the task summary fills them in.
+    The interval is on the raw scale; rank, comparisons and Pareto flags are left unset: the task
+    summary sets its analysis scale and fills them in.
     """
     runs = _latest_per_seed(runs, label, gaps)
     _row_gaps(label, runs, metric, gaps)
@@ -167,7 +236,8 @@ def build_row(
     values = tuple(v for r in ok_runs if (v := _metric(r, ranked_split(r), metric)) is not None)
     counts = Counter(r.status for r in runs)
     counts["missing"] = len(ok_runs) - len(values)
-    if len(values) == 1:
+    exact = _exact(label, ok_runs, values, gaps)
+    if len(values) == 1 and not exact:
         gaps.append(f"{label}: only one usable seed, so no interval and no test against the best")
     params, params_value = _params(runs)
     if kind == "model":
@@ -179,9 +249,13 @@ def build_row(
         kind=kind,
         label=label,
         runs=tuple(runs),
-        counts={s: counts.get(s, 0) for s in ("ok", "diverged", "failed", "missing")},
+        counts={s: counts.get(s, 0) for s in STATUS_COUNTS},
         values=values,
-        interval=_interval(values, confidence),
+        interval=row_interval(values, exact, "raw", metric, confidence),
+        exact=exact,
+        flags=_flags(runs) if kind == "model" else (),
+        tuning=_tuning(runs),
+        ship=_ship(ok_runs, metric, goal),
         params=params,
         params_value=params_value,
         rank=None,

@@ -4,31 +4,21 @@ missing) and the cross-task view."""
 from __future__ import annotations
 
 from collections import Counter, defaultdict
-from collections.abc import Iterable, Sequence
+from collections.abc import Sequence
 from dataclasses import replace
 
 from loopzoo.report.cross_task import cross_task
+from loopzoo.report.labels import option_label, variant_labels
 from loopzoo.report.loading import Run, Skipped
-from loopzoo.report.ranking import compare, competition_ranks, fronts
+from loopzoo.report.ranking import compare_family, competition_ranks, fronts
 from loopzoo.report.results import Row, Summary, TaskSummary
-from loopzoo.report.rows import build_row
+from loopzoo.report.rows import build_row, row_interval
+from loopzoo.report.stats import analysis_scale
 
-__all__ = ["summarise"]
+__all__ = ["EQUIVALENCE_MARGIN", "summarise"]
 
-
-def _variant_labels(name: str, variants: Iterable[tuple]) -> dict[tuple, str]:
-    """Label each distinct variant by ``name`` plus only the settings that tell variants apart."""
-    distinct = sorted(set(variants))
-    if len(distinct) == 1:
-        return {distinct[0]: name}
-    settings = [dict(v) for v in distinct]
-    keys = sorted({k for s in settings for k in s})
-    differing = [k for k in keys if len({s.get(k) for s in settings}) > 1]
-    labels = {}
-    for variant, setting in zip(distinct, settings, strict=True):
-        parts = [f"{k.removeprefix('options.')}={setting.get(k, 'unset')}" for k in differing]
-        labels[variant] = f"{name} ({', '.join(parts)})"
-    return labels
+EQUIVALENCE_MARGIN = 0.05  # relative margin of the equivalence test (5%: a stated convention)
+ROW_KINDS = ("model", "baseline", "bound")
 
 
 def _primary(runs: Sequence[Run], task_label: str, gaps: list[str]) -> tuple[str | None, str]:
@@ -55,46 +45,107 @@ def _missing_seeds(rows: Sequence[Row], gaps: list[str]) -> None:
             gaps.append(f"{row.label}: no record for seed(s) {', '.join(map(str, absent))}")
 
 
-def _summarise_task(
-    label: str, runs: list[Run], alpha: float, confidence: float
-) -> TaskSummary:
-    gaps: list[str] = []
-    metric, goal = _primary(runs, label, gaps)
+def _group_rows(runs: Sequence[Run]) -> dict[tuple[str, str], list[Run]]:
+    """Runs by (kind, row label): the name with its non-default options, then whatever else
+    tells same-labelled variants apart (feedback settings, budget)."""
     grouped: dict[tuple[str, str], list[Run]] = defaultdict(list)
-    for kind in ("model", "baseline"):
+    for kind in ROW_KINDS:
         by_name: dict[str, list[Run]] = defaultdict(list)
         for run in runs:
             if run.kind == kind:
-                by_name[run.model].append(run)
+                by_name[option_label(run.model, run.options)].append(run)
         for name in sorted(by_name):
-            labels = _variant_labels(name, (r.row_variant for r in by_name[name]))
+            labels = variant_labels(name, (r.row_variant for r in by_name[name]))
             for run in by_name[name]:
                 grouped[(kind, labels[run.row_variant])].append(run)
+    return grouped
+
+
+def _summarise_task(
+    label: str, runs: list[Run], notes: Sequence[str], alpha: float, margin: float,
+    confidence: float,
+) -> TaskSummary:
+    gaps: list[str] = list(notes)
+    metric, goal = _primary(runs, label, gaps)
+    grouped = _group_rows(runs)
     rows = [
-        build_row(kind, row_label, grouped[(kind, row_label)], metric, confidence, gaps)
+        build_row(kind, row_label, grouped[(kind, row_label)], metric, goal, confidence, gaps)
         for kind, row_label in sorted(grouped)
     ]
     _missing_seeds(rows, gaps)
+    scale = analysis_scale(metric, [v for r in rows for v in r.values])
+    if scale == "raw" and analysis_scale(metric, [1.0]) == "log":
+        gaps.append(f"{label}: some {metric} values are 0 or below, so rows are compared on the "
+                    "raw scale rather than as ratios")
+    rows = [replace(r, interval=row_interval(r.values, r.exact, scale, metric, confidence))
+            for r in rows]
     ranks = competition_ranks(rows, goal)
     order = {key: position for position, key in enumerate(ranks)}
     by_key = {r.key: r for r in rows}
     best = by_key.get(next(iter(ranks), None))
     pick = by_key.get(next((key for key in ranks if key[0] == "model"), None))
+    ranked = [r for r in rows if r.kind != "bound"]
+    versus_best = compare_family(ranked, best, scale, alpha, margin, confidence)
+    versus_pick = compare_family([r for r in rows if r.kind == "model"], pick, scale, alpha,
+                                 margin, confidence)
     latency_front = fronts(rows, goal, "latency")
     params_front = fronts(rows, goal, "params")
     finished = [
         replace(
             row,
             rank=ranks.get(row.key),
-            versus_best=compare(row, best, alpha),
-            versus_pick=compare(row, pick, alpha) if row.kind == "model" else row.versus_pick,
+            versus_best=versus_best.get(row.key, row.versus_best),
+            versus_pick=versus_pick.get(row.key, row.versus_pick),
             front_latency=latency_front.get(row.key),
             front_params=params_front.get(row.key),
         )
         for row in rows
     ]
-    finished.sort(key=lambda r: (order.get(r.key, len(order)), r.key))
-    return TaskSummary(label, metric, goal, tuple(finished), tuple(gaps))
+    finished.sort(key=lambda r: (order.get(r.key, len(order)), ROW_KINDS.index(r.kind), r.key))
+    return TaskSummary(label, metric, goal, scale, tuple(finished), tuple(gaps))
+
+
+def _short(sha256: str) -> str:
+    return sha256[:12]
+
+
+def _data_versions(label: str, runs: list[Run]) -> dict[str, tuple[list[Run], list[str]]]:
+    """Split a task's runs by the content of the files they read (``data.files``): runs of
+    different data versions are never pooled. Returns label -> (runs, notes)."""
+    versions: dict[tuple, list[Run]] = defaultdict(list)
+    unrecorded = [r for r in runs if r.data_files is None]
+    for run in runs:
+        if run.data_files is not None:
+            versions[run.data_files].append(run)
+    if len(versions) <= 1:
+        notes = []
+        if versions and unrecorded:
+            notes.append(
+                f"{label}: {len(unrecorded)} record(s) do not record the content hash of the data "
+                "they read (not recorded); pooled with the rest"
+            )
+        return {label: (runs, notes)}
+    roles = sorted({(f.role, f.path) for files in versions for f in files})
+    changed = [
+        (role, path) for role, path in roles
+        if len({next((f.sha256 for f in files if (f.role, f.path) == (role, path)), None)
+                for files in versions}) > 1
+    ]
+    described = []
+    for files, members in sorted(versions.items(), key=lambda item: (-len(item[1]), item[0])):
+        hashes = ", ".join(
+            _short(f.sha256) for f in files if (f.role, f.path) in changed
+        ) or "absent"
+        described.append((files, members, hashes))
+    summary = "; ".join(f"sha256 {hashes}… in {len(members)} record(s)"
+                        for _, members, hashes in described)
+    what = ", ".join(f"{path} ({role})" for role, path in changed)
+    note = (f"{label}: not pooled: its runs read different versions of {what}: {summary}; each "
+            "version is reported as its own task")
+    split = {f"{label} (data {hashes})": (members, [note]) for _, members, hashes in described}
+    if unrecorded:
+        split[f"{label} (data not recorded)"] = (unrecorded, [note])
+    return split
 
 
 def summarise(
@@ -102,23 +153,31 @@ def summarise(
     skipped: Sequence[Skipped] = (),
     alpha: float = 0.05,
     confidence: float = 0.95,
+    margin: float = EQUIVALENCE_MARGIN,
 ) -> Summary:
-    """Group runs by task (name plus differing task options) and row, and compute every figure.
+    """Group runs by task (name, differing task options, data version) and row, and compute every
+    figure. ``margin`` is the relative equivalence margin of the two one-sided tests.
 
     Example: ``summarise(load_runs(out)[0]).tasks[0].best.label`` names the best row of the first
     task (tasks in alphabetical order).
     """
     if not 0.0 < alpha < 1.0:
         raise ValueError(f"alpha must lie in (0, 1), got {alpha!r}")
+    if not margin > 0.0:
+        raise ValueError(f"equivalence margin must be above 0, got {margin!r}")
     by_task: dict[str, list[Run]] = defaultdict(list)
     for run in runs:
         by_task[run.task].append(run)
-    labelled: dict[str, list[Run]] = defaultdict(list)
+    labelled: dict[str, tuple[list[Run], list[str]]] = {}
     for name, task_runs in by_task.items():
-        labels = _variant_labels(name, (r.task_variant for r in task_runs))
+        labels = variant_labels(name, (r.task_variant for r in task_runs))
+        grouped: dict[str, list[Run]] = defaultdict(list)
         for run in task_runs:
-            labelled[labels[run.task_variant]].append(run)
+            grouped[labels[run.task_variant]].append(run)
+        for label, members in grouped.items():
+            labelled.update(_data_versions(label, members))
     tasks = tuple(
-        _summarise_task(label, labelled[label], alpha, confidence) for label in sorted(labelled)
+        _summarise_task(label, labelled[label][0], labelled[label][1], alpha, margin, confidence)
+        for label in sorted(labelled)
     )
-    return Summary(tasks, cross_task(tasks), tuple(skipped), alpha, confidence)
+    return Summary(tasks, cross_task(tasks), tuple(skipped), alpha, confidence, margin)
