@@ -148,6 +148,8 @@ class Task(ABC):
     Options: ClassVar[type]
     # False for fixed records split chronologically: the seed then only seeds the models.
     seed_changes_data: ClassVar[bool] = True
+    # Options naming the user's input files; their content is part of a run's identity.
+    file_options: ClassVar[tuple[str, ...]] = ()
 
     input_size: int
     output_size: int
@@ -156,6 +158,7 @@ class Task(ABC):
         self.seed = check_seed(seed)
         self.options = build_options(self.Options, self.name, options)
         self._splits: dict[str, Split] | None = None
+        self._files: list[dict[str, Any]] = []  # set by tasks that read the user's files
 
     def split(self, name: str) -> Split:
         """The "train", "val" or "test" part; built once, then cached."""
@@ -201,6 +204,12 @@ class Task(ABC):
         return {"name": self.name, "kind": self.kind, "seed": self.seed, "options": options,
                 "input_size": self.input_size, "output_size": self.output_size,
                 "metric": self.metric, "goal": self.goal, "splits": sizes, **self._facts()}
+
+    def data_files(self) -> list[dict[str, Any]]:
+        """The user's files this task read, one dict each: ``role`` (the option naming it),
+        ``path``, ``sha256`` and ``bytes`` of the content read, ``rows`` (data rows; text lines).
+        Empty for generated data and the open datasets."""
+        return [dict(file) for file in self._files]
 
     def _facts(self) -> dict[str, Any]:
         """Task-specific data facts for ``describe``."""

@@ -57,7 +57,8 @@ class SeriesData:
     """A recorded multichannel series in data units.
 
     values: (L, C) float64, every column an input; targets: the column indices to forecast;
-    imputed: (L,) bool, steps whose target values were filled in (never scored).
+    imputed: (L,) bool, steps whose target values were filled in (never scored); times: the
+    time of each step (ISO 8601 text or a number) when the source has a time column, else None.
     """
 
     source: str
@@ -66,6 +67,7 @@ class SeriesData:
     targets: tuple[int, ...]
     imputed: np.ndarray
     facts: dict[str, Any] = dataclasses.field(default_factory=dict)
+    times: tuple[str | float, ...] | None = None
 
 
 class SeriesTask(RegressionTask):
@@ -277,12 +279,28 @@ class SeriesTask(RegressionTask):
             self._ar_order = min(errors, key=errors.get)
         return self._ar_order
 
+    def _part_facts(self, name: str) -> dict[str, Any]:
+        """Where a part lies and what of it is scored: its rows (and times), the rows at its
+        start only ever read as context, forecasts made, and filled-in values."""
+        start, end = self._bounds[name]
+        candidates = max(0, end - start - self._reach + 1)
+        forecasts = len(self._sample_starts(name))
+        facts: dict[str, Any] = {
+            "first_row": start, "end_row": end, "rows": end - start,
+            "context_rows": self._lead + self.options.window - 1 + min(self.horizons),
+            "forecasts": forecasts, "scored_values": forecasts * self.output_size,
+            "filled_values": int(self.data.imputed[start:end].sum()),
+            "forecasts_dropped_for_filled_targets": candidates - forecasts,
+        }
+        if self.data.times is not None:
+            facts.update(first_time=self.data.times[start], last_time=self.data.times[end - 1])
+        return facts
+
     def _facts(self) -> dict[str, Any]:
         return {"source": self.data.source, "rows": len(self.data.values),
                 "columns": list(self.data.columns),
                 "targets": [self.data.columns[c] for c in self.data.targets],
-                "parts": {name: {"first_row": a, "end_row": b}
-                          for name, (a, b) in self._bounds.items()},
+                "parts": {name: self._part_facts(name) for name in SPLITS},
                 "inputs": ("first differences v[t] - v[t-1] of every column"
                            if self.options.differences else "values of every column"),
                 "target_values": ("changes v[t+h] - v[t] from the current value, v[t] added back "

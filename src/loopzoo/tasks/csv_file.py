@@ -1,5 +1,5 @@
-"""The user's own CSV file: "csv" forecasts target columns, "csv-sequences" classifies
-variable-length sequences.
+"""The user's own table (CSV or Parquet): "csv" forecasts target columns, "csv-sequences"
+classifies variable-length sequences.
 
     loopzoo.tasks.create("csv", path="load.csv", target="kw", features=["temp"], time="hour",
                          window=48, horizons=[1, 24])
@@ -11,25 +11,24 @@ from __future__ import annotations
 
 import dataclasses
 import os
-from pathlib import Path
 from typing import Any
 
 import numpy as np
 
 from loopzoo.tasks._base import SPLITS, Split, split_generators
 from loopzoo.tasks._catalog import TASKS
-from loopzoo.tasks._csv_table import CsvTable, read_csv_table
 from loopzoo.tasks._options import check_fraction, check_str_list
 from loopzoo.tasks._scaling import Standardizer
 from loopzoo.tasks._sequence_classes import SequenceClassTask, encode_sequences, stratified_parts
 from loopzoo.tasks._series import SeriesData, SeriesOptions, SeriesTask
+from loopzoo.tasks._table import read_table
 
 __all__ = ["CsvClassTask", "CsvForecastTask"]
 
 
 def _check_path(path: object) -> None:
     if path is None:
-        raise ValueError("path=<a CSV file with a header row> is required")
+        raise ValueError("path=<a CSV or Parquet file with a header row> is required")
     if not isinstance(path, str | os.PathLike):
         raise ValueError(f"path must be a file path, got {path!r}")
 
@@ -49,23 +48,12 @@ def _check_disjoint(**groups: tuple[str, ...]) -> None:
             seen[name] = role
 
 
-def _time_order(table: CsvTable, field: str, name: str, rows: np.ndarray) -> np.ndarray:
-    """``rows`` sorted by the time column; repeated times within them are an error."""
-    keys = table.sort_keys(field, name)
-    ordered = sorted(rows, key=lambda row: keys[row])
-    for before, after in zip(ordered, ordered[1:], strict=False):
-        if keys[before] == keys[after]:
-            raise ValueError(f"{table.path}: lines {table.lines[before]} and {table.lines[after]} "
-                             f"have the same {name!r} value {keys[after]!r}; times must be unique")
-    return np.array(ordered, dtype=np.int64)
-
-
 @dataclasses.dataclass(frozen=True)
 class CsvForecastOptions(SeriesOptions):
-    path: str | os.PathLike[str] | None = None  # the CSV file (required)
+    path: str | os.PathLike[str] | None = None  # the CSV or Parquet file (required)
     target: str | tuple[str, ...] | None = None  # column(s) to forecast (required)
     features: tuple[str, ...] = ()  # further input columns, known up to the window's end
-    time: str | None = None  # column to sort rows by (numbers or ISO 8601); None: file order
+    time: str | None = None  # column to sort rows by (numbers or ISO 8601 dates); None: file order
 
     def __post_init__(self) -> None:
         super().__post_init__()
@@ -83,10 +71,11 @@ class CsvForecastOptions(SeriesOptions):
 
 @TASKS.register("csv")
 class CsvForecastTask(SeriesTask):
-    """Forecast the target column(s) of your CSV file from a window of past rows.
+    """Forecast the target column(s) of your CSV or Parquet file from a window of past rows.
 
     See ``SeriesTask`` for windows, parts, scaling and baselines. Rows are ordered by ``time``
-    if given; no cell may be missing.
+    if given (numbers or ISO 8601 dates; repeated times are refused, unsorted or unevenly spaced
+    ones reported); no cell may be missing.
 
     Example:
         >>> loopzoo.tasks.create("csv", path="load.csv", target="kw", time="hour", window=48)
@@ -94,6 +83,7 @@ class CsvForecastTask(SeriesTask):
 
     name = "csv"
     Options = CsvForecastOptions
+    file_options = ("path",)
 
     def __init__(self, seed: int = 0, **options: Any) -> None:
         if "label" in options or "sequence" in options:
@@ -102,25 +92,32 @@ class CsvForecastTask(SeriesTask):
         super().__init__(seed, **options)
 
     def _load(self) -> SeriesData:
-        table = read_csv_table(Path(self.options.path))
+        table = read_table(self.options.path)
+        self._files = [{"role": "path", **table.describe_file()}]
         for field, names in (("target", self.options.target), ("features", self.options.features)):
             for name in names:
                 table.column(field, name)
-        rows = np.arange(len(table.rows))
+        rows = np.arange(len(table))
+        facts: dict[str, Any] = {"ordered_by": self.options.time or "file order"}
+        times = None
         if self.options.time is not None:
-            rows = _time_order(table, "time", self.options.time, rows)
+            column = table.times("time", self.options.time)
+            rows, moved = table.order(column, rows)
+            table.warn_unsorted(column, moved, len(rows))
+            times = tuple(column.label(row) for row in rows)
+            facts["time"] = {"column": column.name, "kind": column.kind,
+                             "rows_out_of_order_in_file": moved, **table.spacing(column, rows)}
         columns = (*self.options.target, *self.options.features)
         values = np.stack([table.numbers("target" if c in self.options.target else "features", c)
                            for c in columns], axis=1)[rows]
         return SeriesData(source=str(table.path), values=values, columns=columns,
                           targets=tuple(range(len(self.options.target))),
-                          imputed=np.zeros(len(values), dtype=bool),
-                          facts={"ordered_by": self.options.time or "file order"})
+                          imputed=np.zeros(len(values), dtype=bool), facts=facts, times=times)
 
 
 @dataclasses.dataclass(frozen=True)
 class CsvClassOptions:
-    path: str | os.PathLike[str] | None = None  # the CSV file (required)
+    path: str | os.PathLike[str] | None = None  # the CSV or Parquet file (required)
     label: str | None = None  # the class column (required), constant within a sequence
     sequence: str | None = None  # the sequence id column (required); rows of one id form one
     features: tuple[str, ...] | None = None  # input columns; None: all the other columns
@@ -148,7 +145,8 @@ class CsvClassOptions:
 
 @TASKS.register("csv-sequences")
 class CsvClassTask(SequenceClassTask):
-    """Classify the variable-length sequences of a CSV file (rows grouped by ``sequence``).
+    """Classify the variable-length sequences of a CSV or Parquet file (rows grouped by
+    ``sequence``).
 
     Each sequence's class is its ``label`` (text or numbers; classes in sorted order). Features
     are standardised with the training sequences' mean and std. Parts: a stratified draw of
@@ -160,10 +158,12 @@ class CsvClassTask(SequenceClassTask):
 
     name = "csv-sequences"
     Options = CsvClassOptions
+    file_options = ("path",)
 
     def __init__(self, seed: int = 0, **options: Any) -> None:
         super().__init__(seed, **options)
-        table = read_csv_table(Path(self.options.path))
+        table = read_table(self.options.path)
+        self._files = [{"role": "path", **table.describe_file()}]
         opts = self.options
         roles = {opts.label, opts.sequence, opts.time}
         features = opts.features or tuple(name for name in table.header if name not in roles)
@@ -177,19 +177,24 @@ class CsvClassTask(SequenceClassTask):
         for row, key in enumerate(ids):
             groups.setdefault(key, []).append(row)
         self.class_names = self._classes(labels)
-        self._sequences, sequence_labels = [], []
+        times = None if opts.time is None else table.times("time", opts.time)
+        self._sequences, sequence_labels, moved = [], [], 0
         for key, rows in groups.items():
             first = rows[0]
             for row in rows[1:]:
                 if labels[row] != labels[first]:
                     raise ValueError(
-                        f"{table.path}: sequence {key!r} has label {labels[first]!r} on line "
-                        f"{table.lines[first]} but {labels[row]!r} on line {table.lines[row]}; "
+                        f"{table.path}: sequence {key!r} has label {labels[first]!r} on "
+                        f"{table.where(first)} but {labels[row]!r} on {table.where(row)}; "
                         "a sequence has one label")
-            order = (np.array(rows) if opts.time is None
-                     else _time_order(table, "time", opts.time, np.array(rows)))
+            order = np.array(rows)
+            if times is not None:
+                order, moved_here = table.order(times, order)
+                moved += moved_here
             self._sequences.append(values[order])
             sequence_labels.append(self.class_names.index(labels[first]))
+        if times is not None:
+            table.warn_unsorted(times, moved, len(table))
         self._labels = np.array(sequence_labels, dtype=np.int64)
         if len(self.class_names) < 2:
             raise ValueError(f"{table.path}: column {opts.label!r} has a single class "

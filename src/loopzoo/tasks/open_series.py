@@ -39,7 +39,8 @@ class SunspotsTask(SeriesTask):
         years = frame["YEAR"].to_numpy()
         return SeriesData(source="statsmodels sunspots", values=values, columns=("SUNACTIVITY",),
                           targets=(0,), imputed=np.zeros(len(values), dtype=bool),
-                          facts={"first_year": int(years[0]), "last_year": int(years[-1])})
+                          facts={"first_year": int(years[0]), "last_year": int(years[-1])},
+                          times=tuple(int(year) for year in years))
 
 
 @dataclasses.dataclass(frozen=True)
@@ -56,7 +57,7 @@ class Co2Task(SeriesTask):
     The 59 missing weeks are filled by linear interpolation between the neighbouring observed
     weeks so that windows stay regular; filled weeks may appear as inputs but a sample whose
     forecast week is filled is left out, so no filled value is ever scored. ``describe()``
-    reports how many weeks were filled and how many samples were left out.
+    reports how many weeks were filled and, per part, how many forecasts were left out.
 
     The series rises from about 315 to 370 ppm, so the validation and test weeks lie above
     every training week; by default the model therefore reads and forecasts weekly changes
@@ -86,14 +87,8 @@ class Co2Task(SeriesTask):
             facts={"first_week": str(frame.index[0].date()),
                    "last_week": str(frame.index[-1].date()),
                    "missing_weeks_filled": int(missing.sum()),
-                   "fill_method": "linear interpolation between neighbouring observed weeks"})
-
-    def _facts(self) -> dict[str, object]:
-        dropped = {}
-        for name in ("train", "val", "test"):
-            start, end = self._bounds[name]
-            dropped[name] = (end - start - self._reach + 1) - len(self._sample_starts(name))
-        return {**super()._facts(), "samples_left_out_for_filled_targets": dropped}
+                   "fill_method": "linear interpolation between neighbouring observed weeks"},
+            times=tuple(str(day.date()) for day in frame.index))
 
 
 @dataclasses.dataclass(frozen=True)
@@ -124,4 +119,6 @@ class ElNinoTask(SeriesTask):
         return SeriesData(source="statsmodels elnino", values=values, columns=("temperature",),
                           targets=(0,), imputed=np.zeros(len(values), dtype=bool),
                           facts={"first_year": int(frame["YEAR"].iloc[0]),
-                                 "last_year": int(frame["YEAR"].iloc[-1])})
+                                 "last_year": int(frame["YEAR"].iloc[-1])},
+                          times=tuple(f"{int(year)}-{month:02d}" for year in frame["YEAR"]
+                                      for month in range(1, 13)))

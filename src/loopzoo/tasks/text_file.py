@@ -7,6 +7,7 @@ import os
 from pathlib import Path
 
 from loopzoo.tasks._catalog import TASKS
+from loopzoo.tasks._files import read_input_file
 from loopzoo.tasks._text import CharacterTask, TextOptions
 
 __all__ = ["TextFileTask"]
@@ -24,13 +25,10 @@ class TextFileOptions(TextOptions):
             raise ValueError(f"path must be a file path, got {self.path!r}")
 
 
-def read_text(path: Path) -> str:
-    """The file's text; clear errors for a missing, unreadable, non-UTF-8 or empty file."""
-    if not path.exists():
-        raise FileNotFoundError(f"text file {str(path)!r} does not exist")
-    if not path.is_file():
-        raise ValueError(f"text path {str(path)!r} is not a file")
-    data = path.read_bytes()
+def read_text(path: Path) -> tuple[str, dict[str, object]]:
+    """The file's text and identity (``read_input_file``); clear errors for a missing,
+    unreadable, non-UTF-8 or empty file."""
+    data, file = read_input_file(path, "text file")
     try:
         text = data.decode("utf-8")
     except UnicodeDecodeError as error:
@@ -39,7 +37,7 @@ def read_text(path: Path) -> str:
                          "save the file as UTF-8") from None
     if not text.strip():
         raise ValueError(f"text file {str(path)!r} is empty (no characters besides whitespace)")
-    return text
+    return text, {**file, "rows": len(text.splitlines())}
 
 
 @TASKS.register("text")
@@ -55,10 +53,12 @@ class TextFileTask(CharacterTask):
 
     name = "text"
     Options = TextFileOptions
+    file_options = ("path",)
 
     def __init__(self, seed: int = 0, **options: object) -> None:
         super().__init__(seed, **options)
         path = Path(self.options.path)
         self.source = str(path)
-        self.text = read_text(path)
+        self.text, file = read_text(path)
+        self._files = [{"role": "path", **file}]
         self._prepare_text()
