@@ -66,6 +66,12 @@ def _build_task(settings: RunSettings) -> Any:
         raise ConfigError(f"task {settings.task!r}: {error}") from error
 
 
+def _data_record(task: Any) -> dict[str, Any]:
+    """The record's ``data``: the user files read (``task.data_files()``) and ``task.describe()``
+    (options chosen, split sizes and boundaries, context rows, filled values, scaling)."""
+    return {"files": task.data_files(), "facts": task.describe()}
+
+
 def _build_model(settings: RunSettings, task: Any) -> torch.nn.Module:
     sizes = {"input_size": task.input_size, "output_size": task.output_size}
     try:
@@ -250,7 +256,7 @@ def train_and_evaluate(cfg: DictConfig, run_dir: Path) -> dict[str, Any]:
         "versions": versions(),
         "primary": {"name": task.metric, "goal": task.goal},
         "metrics": None, "lr": None, "curves": None, "cost": None, "gradient_reach": None,
-        "feedback": None, "started": started, "finished": None,
+        "feedback": None, "started": started, "finished": None, "data": _data_record(task),
     }
     if run.feeds_back:
         body["feedback"] = {**plan.describe(), "fed_back": model.options.get("fed_back"),
@@ -343,6 +349,7 @@ def baseline_records(cfg: DictConfig) -> list[dict[str, Any]]:
     started = utc_now()
     settings = read_settings(cfg)
     task = _build_task(settings)
+    data = _data_record(task)
     records = []
     for name, metrics in task.baselines().items():
         records.append(_finite({
@@ -354,6 +361,6 @@ def baseline_records(cfg: DictConfig) -> list[dict[str, Any]]:
             "versions": versions(), "primary": {"name": task.metric, "goal": task.goal},
             "metrics": {"test": {k: float(v) for k, v in metrics.items()}},
             "lr": None, "curves": None, "cost": None, "gradient_reach": None, "feedback": None,
-            "started": started, "finished": utc_now(),
+            "started": started, "finished": utc_now(), "data": data,
         }))
     return records

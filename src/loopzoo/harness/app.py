@@ -132,8 +132,22 @@ def run_one(cfg: DictConfig, *, threads: int | None = None, sweep: bool = False)
         torch.set_num_threads(previous_threads)
 
 
+def _changed_files(body: dict[str, Any], content: dict[str, Any]) -> dict[str, Any]:
+    """``body`` as a failed run if a user file the run read differs from the one its run id was
+    derived from (the file changed while the run started): the next run redoes it."""
+    expected = {f["role"]: f["sha256"] for f in content.get("data", [])}
+    read = {f["role"]: f["sha256"] for f in (body.get("data") or {}).get("files", [])}
+    changed = sorted(role for role in read if read[role] != expected.get(role))
+    if not changed:
+        return body
+    reason = (f"task.options.{changed[0]} changed while the run started (its run id was derived "
+              "from the earlier content); run again")
+    return {**body, "status": "failed", "reason": reason, "metrics": {}}
+
+
 def _run_locked(cfg: DictConfig, out: Path, sweep: bool) -> Outcome:
-    rid = runids.run_id(cfg)
+    content = runids.identity(cfg)
+    rid = runids.run_id(content)
     tick = time.perf_counter()
     with state.file_lock(state.state_dir(out) / "locks" / f"{rid}.lock"):
         kept = records.is_done(out, rid)
@@ -148,7 +162,7 @@ def _run_locked(cfg: DictConfig, out: Path, sweep: bool) -> Outcome:
             run_dir = out / "runs" / rid
             shutil.rmtree(run_dir, ignore_errors=True)  # leftovers of an interrupted attempt
             run_dir.mkdir(parents=True)
-            body = _train(cfg, run_dir, started)
+            body = _changed_files(_train(cfg, run_dir, started), content)
             config = OmegaConf.to_container(cfg, resolve=True)
             records.write_record(
                 out, records.make_record(body, run_id=rid, kind="model", config=config)

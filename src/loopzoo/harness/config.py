@@ -211,6 +211,24 @@ def _check_names(cfg: DictConfig) -> None:
         raise ConfigError(f"seed must be a non-negative integer, got {cfg.seed!r}")
     if not isinstance(cfg.out, str) or not cfg.out:
         raise ConfigError(f"out must be a directory path, got {cfg.out!r}")
+    _check_files(cfg)
+
+
+def _check_files(cfg: DictConfig) -> None:
+    """The task's input files exist and are readable before any run is planned or recorded."""
+    from loopzoo.tasks import TASKS
+    from loopzoo.tasks._files import check_input_file
+
+    for role in TASKS.get(cfg.task.name).file_options:
+        path = cfg.task.options.get(role)
+        if path is None:
+            continue
+        if not isinstance(path, str) or not path:
+            raise ConfigError(f"task.options.{role} must be a file path, got {path!r}")
+        try:
+            check_input_file(path, "file")
+        except (OSError, ValueError) as error:
+            raise ConfigError(f"task.options.{role}: {error}") from None
 
 
 def finish_config(cfg: DictConfig, overrides: list[str]) -> DictConfig:

@@ -9,7 +9,10 @@ from typing import Any
 
 from omegaconf import DictConfig, OmegaConf
 
-__all__ = ["IDENTITY_EXCLUDED", "identity", "run_id", "baseline_run_id", "baseline_group"]
+from loopzoo.harness.errors import ConfigError
+
+__all__ = ["IDENTITY_EXCLUDED", "data_files", "identity", "run_id", "baseline_run_id",
+           "baseline_group"]
 
 # Keys that change where or how visibly a run happens, never its result. Launcher settings live
 # under `hydra`, which a job's config does not contain.
@@ -23,11 +26,39 @@ IDENTITY_EXCLUDED: tuple[str, ...] = (
 _UNSAFE = re.compile(r"[^A-Za-z0-9_.-]+")
 
 
+def data_files(cfg: DictConfig | dict[str, Any]) -> list[dict[str, Any]]:
+    """``{"role", "path", "sha256", "bytes"}`` of each user file the run's task reads now (the
+    task options named by its class's ``file_options``); empty for generated and open data.
+
+    A file that is missing or unreadable is a ``ConfigError`` naming the option.
+    """
+    from loopzoo.tasks import TASKS
+    from loopzoo.tasks._files import fingerprint
+
+    task = cfg.get("task")
+    if task is None or task.get("name") not in TASKS.names():
+        return []
+    options = task.get("options") or {}
+    files = []
+    for role in TASKS.get(task.get("name")).file_options:
+        path = options.get(role)
+        if path is None:
+            continue
+        try:
+            files.append({"role": role, **fingerprint(str(path), what="file")})
+        except (OSError, ValueError) as error:
+            raise ConfigError(f"task.options.{role}: {error}") from None
+    return files
+
+
 def identity(cfg: DictConfig | dict[str, Any]) -> dict[str, Any]:
-    """The resolved config minus ``IDENTITY_EXCLUDED``: what a run's result depends on."""
+    """The resolved config minus ``IDENTITY_EXCLUDED``, plus the SHA-256 of every user file the
+    task reads (``data``: ``[{"role", "sha256"}]``, absent when there is none): what a run's
+    result depends on. A changed file therefore means new run ids."""
     data = OmegaConf.to_container(cfg, resolve=True) if isinstance(cfg, DictConfig) else cfg
     data = json.loads(json.dumps(data))  # a deep copy that also proves it is JSON-serialisable
     data.pop("hydra", None)
+    data.pop("data", None)
     for dotted in IDENTITY_EXCLUDED:
         *parents, leaf = dotted.split(".")
         node = data
@@ -35,6 +66,9 @@ def identity(cfg: DictConfig | dict[str, Any]) -> dict[str, Any]:
             node = node.get(key) if isinstance(node, dict) else None
         if isinstance(node, dict):
             node.pop(leaf, None)
+    files = data_files(data)
+    if files:
+        data["data"] = [{"role": f["role"], "sha256": f["sha256"]} for f in files]
     return data
 
 
@@ -60,11 +94,13 @@ def run_id(cfg: DictConfig | dict[str, Any]) -> str:
 
 
 def baseline_group(cfg: DictConfig | dict[str, Any]) -> str:
-    """Hash of what a task's baselines depend on: the task config, the seed and the suite."""
+    """Hash of what a task's baselines depend on: the task config, its files, the seed and the
+    suite."""
     content = identity(cfg)
-    return _digest(
-        {"task": content["task"], "seed": content["seed"], "suite": content.get("suite")}
-    )
+    group = {"task": content["task"], "seed": content["seed"], "suite": content.get("suite")}
+    if "data" in content:
+        group["data"] = content["data"]
+    return _digest(group)
 
 
 def baseline_run_id(cfg: DictConfig | dict[str, Any], baseline: str) -> str:
