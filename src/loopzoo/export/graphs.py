@@ -48,11 +48,11 @@ class _SequenceGraph(torch.nn.Module):
         self.model = model
 
     def forward(self, x: torch.Tensor, state: tuple[torch.Tensor, ...]):
-        # ``_step`` is ``step`` without its argument checks: the checks format messages with
-        # Python strings, which scan's tracer cannot follow; the graph's typed inputs stand in.
+        # ``step_unchecked`` is ``step`` without its argument checks: the checks format messages
+        # with Python strings, which scan's tracer cannot follow; the graph's typed inputs stand in.
         # The clone: scan refuses a step whose output aliases its carry (output feedback).
         def advance(carry, x_t):
-            y_t, next_state = self.model._step(x_t, tuple(carry))
+            y_t, next_state = self.model.step_unchecked(x_t, tuple(carry))
             return next_state, y_t.clone()
 
         final, y = scan(advance, tuple(state), x, dim=1)
@@ -65,9 +65,10 @@ class _TeacherForcedGraph(torch.nn.Module):
         self.model = model
 
     def forward(self, x: torch.Tensor, targets: torch.Tensor, state: tuple[torch.Tensor, ...]):
-        # ``_sequence`` is ``forward`` without its checks, whose data-dependent branches (finite
-        # values, class-id ranges) cannot be traced. The clones keep outputs from aliasing inputs.
-        y, final = self.model._sequence(x, tuple(state), None, targets, 1.0)
+        # ``forward_unchecked`` is ``forward`` without its checks, whose data-dependent branches
+        # (finite values, class-id ranges) cannot be traced. The clones keep outputs from aliasing
+        # inputs.
+        y, final = self.model.forward_unchecked(x, tuple(state), None, targets, 1.0)
         return (y, *(t.clone() for t in final))
 
 

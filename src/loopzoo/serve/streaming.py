@@ -53,8 +53,8 @@ class StreamRunner:
                 )
         self.model = model.eval()
         # The runner checks every sample and owns every state, so it calls the topology's step
-        # on checked arguments (``_step``) and skips re-checking them on each sample.
-        self._advance = getattr(model, "_step", model.step)
+        # on checked arguments (``step_unchecked``) and skips re-checking them on each sample.
+        self._advance = getattr(model, "step_unchecked", model.step)
         self._initial = tuple(t.detach() for t in model.init_state(1))
         self._sample_shape = torch.Size([model.input_size])
         self._dtype = self._initial[0].dtype if self._initial else torch.float32

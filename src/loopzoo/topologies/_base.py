@@ -3,7 +3,7 @@
 The base owns what all topologies share: size and option checks, validation of ``forward`` and
 ``step`` arguments, masking by ``lengths``, state creation and checks, and the time loop with
 length-aware state holding. A topology subclass supplies ``state_sizes``, ``_sequence`` (a whole
-sequence) and ``_step`` (one step), so its file is mostly its equations.
+sequence) and ``step_unchecked`` (one step), so its file is mostly its equations.
 """
 
 from __future__ import annotations
@@ -144,7 +144,8 @@ def _shape(shape: Sequence[int | str]) -> str:
 class RecurrentTopology(nn.Module):
     """Base of every registered topology: one interface for batch forward, streaming step and state.
 
-    Subclasses set ``option_specs`` and implement ``state_sizes``, ``_sequence`` and ``_step``.
+    Subclasses set ``option_specs`` and implement ``state_sizes``, ``_sequence`` and
+    ``step_unchecked`` (output feedback overrides ``forward_unchecked`` instead of ``_sequence``).
     Shapes: B batch, T time, I input_size, O output_size; every state tensor is (B, n).
     """
 
@@ -172,20 +173,37 @@ class RecurrentTopology(nn.Module):
         """The width n of each state tensor (B, n), in state order."""
         raise NotImplementedError
 
-    def _sequence(
+    def _sequence(self, x: Tensor, state: State, valid: Tensor | None) -> tuple[Tensor, State]:
+        """Whole-sequence pass behind ``forward_unchecked``; valid is (B, T) bool or None."""
+        raise NotImplementedError
+
+    def step_unchecked(self, x_t: Tensor, state: State) -> tuple[Tensor, State]:
+        """``step`` without its argument checks: x_t (B, I) -> y_t (B, O) and the next state.
+
+        For callers that check once and then step many times (the streaming runner, the exported
+        step graphs): ``x_t`` must have the parameters' dtype and ``state`` be a full tuple of
+        (B, n) tensors, as ``step`` would have accepted them. Free of data-dependent control flow,
+        so ``torch.export`` can trace it.
+        """
+        raise NotImplementedError
+
+    def forward_unchecked(
         self,
         x: Tensor,
         state: State,
-        valid: Tensor | None,
-        targets: Tensor | None,
-        teacher_forcing: float,
+        valid: Tensor | None = None,
+        targets: Tensor | None = None,
+        teacher_forcing: float = 0.0,
     ) -> tuple[Tensor, State]:
-        """Whole-sequence pass on checked arguments; valid is (B, T) bool or None (all valid)."""
-        raise NotImplementedError
+        """``forward`` without its argument checks and without zeroing y past each length.
 
-    def _step(self, x_t: Tensor, state: State) -> tuple[Tensor, State]:
-        """One step on checked arguments."""
-        raise NotImplementedError
+        x (B, T, I), a full state tuple, valid (B, T) bool or None (all valid) -> y (B, T, O) and
+        each sequence's state after its last valid step. ``targets`` (B, T, O) and
+        ``teacher_forcing`` in [0, 1] are read only by output feedback (the one topology that
+        overrides this method); the others ignore them. Example: the exported teacher-forced
+        graph calls ``model.forward_unchecked(x, state, None, targets, 1.0)``.
+        """
+        return self._sequence(x, state, valid)
 
     def _check_targets(self, targets: Tensor, batch: int, steps: int) -> Tensor:
         """Feedback topologies validate and normalise their targets here."""
@@ -236,7 +254,7 @@ class RecurrentTopology(nn.Module):
         else:
             targets = None
         state = self._check_state(state, batch)
-        y, state = self._sequence(x, state, valid, targets, forcing)
+        y, state = self.forward_unchecked(x, state, valid, targets, forcing)
         if valid is not None:
             y = y.masked_fill(~valid.unsqueeze(-1), 0.0)
         return y, state
@@ -250,7 +268,7 @@ class RecurrentTopology(nn.Module):
         x_t = self._check_input("x_t", x_t, ("B", self.input_size))
         check_finite("x_t", x_t)
         state = self._check_state(state, x_t.shape[0])
-        return self._step(x_t, state)
+        return self.step_unchecked(x_t, state)
 
     def extra_repr(self) -> str:
         return ", ".join(f"{k}={v!r}" for k, v in self.options.items())

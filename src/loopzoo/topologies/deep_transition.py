@@ -104,14 +104,7 @@ class DeepTransition(RecurrentTopology):
             z = self.activation(pre)
         return z
 
-    def _sequence(
-        self,
-        x: Tensor,
-        state: State,
-        valid: Tensor | None,
-        targets: Tensor | None,
-        teacher_forcing: float,
-    ) -> tuple[Tensor, State]:
+    def _sequence(self, x: Tensor, state: State, valid: Tensor | None) -> tuple[Tensor, State]:
         def cell(u_t: Tensor, carried: State) -> tuple[Tensor, State]:
             h = self._transition(u_t, carried[0])
             return h, (h,)
@@ -119,6 +112,6 @@ class DeepTransition(RecurrentTopology):
         hs, final = scan(cell, self._project(x.transpose(0, 1)), state, time_major_mask(valid))
         return batch_first(self.readout(hs)), final
 
-    def _step(self, x_t: Tensor, state: State) -> tuple[Tensor, State]:
+    def step_unchecked(self, x_t: Tensor, state: State) -> tuple[Tensor, State]:
         h = self._transition(self._project(x_t.unsqueeze(0))[0], state[0])
         return self.readout(h), (h,)

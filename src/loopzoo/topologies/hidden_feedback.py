@@ -53,17 +53,10 @@ class HiddenFeedback(RecurrentTopology):
     def state_sizes(self) -> tuple[int, ...]:
         return (self.hidden_size,)
 
-    def _sequence(
-        self,
-        x: Tensor,
-        state: State,
-        valid: Tensor | None,
-        targets: Tensor | None,
-        teacher_forcing: float,
-    ) -> tuple[Tensor, State]:
+    def _sequence(self, x: Tensor, state: State, valid: Tensor | None) -> tuple[Tensor, State]:
         hs, final = self.cell.sequence(x.transpose(0, 1), state[0], time_major_mask(valid))
         return batch_first(self.readout(hs)), (final,)  # hs: (T, B, H)
 
-    def _step(self, x_t: Tensor, state: State) -> tuple[Tensor, State]:
+    def step_unchecked(self, x_t: Tensor, state: State) -> tuple[Tensor, State]:
         h = self.cell.step(x_t, state[0])
         return self.readout(h), (h,)

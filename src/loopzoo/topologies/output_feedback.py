@@ -136,14 +136,15 @@ class OutputFeedback(RecurrentTopology):
         """y_t from u_t = U x_t + b (B, H) and the fed-back o_{t-1} (B, O)."""
         return self.readout(self.activation(torch.addmm(u_t, fed, self.weight_oh.t())))
 
-    def _sequence(
+    def forward_unchecked(
         self,
         x: Tensor,
         state: State,
-        valid: Tensor | None,
-        targets: Tensor | None,
-        teacher_forcing: float,
+        valid: Tensor | None = None,
+        targets: Tensor | None = None,
+        teacher_forcing: float = 0.0,
     ) -> tuple[Tensor, State]:
+        """Free running, teacher forced (``teacher_forcing=1``) or scheduled sampling between."""
         if teacher_forcing == 1.0:
             return self._teacher_forced(x, state, valid, targets)
         u = project_time_major(x, self.weight_ih, self.bias)  # (T, B, H)
@@ -184,6 +185,6 @@ class OutputFeedback(RecurrentTopology):
         last = targets[torch.arange(x.shape[0], device=x.device), (lengths - 1).clamp(min=0)]
         return y, (torch.where((lengths > 0).unsqueeze(1), last, state[0]),)
 
-    def _step(self, x_t: Tensor, state: State) -> tuple[Tensor, State]:
+    def step_unchecked(self, x_t: Tensor, state: State) -> tuple[Tensor, State]:
         y_t = self._readout_step(torch.addmm(self.bias, x_t, self.weight_ih.t()), state[0])
         return y_t, (self._feed(y_t),)

@@ -125,14 +125,7 @@ class ResidualSkip(RecurrentTopology):
     def state_sizes(self) -> tuple[int, ...]:
         return (self.hidden_size,) * self.options["num_layers"]
 
-    def _sequence(
-        self,
-        x: Tensor,
-        state: State,
-        valid: Tensor | None,
-        targets: Tensor | None,
-        teacher_forcing: float,
-    ) -> tuple[Tensor, State]:
+    def _sequence(self, x: Tensor, state: State, valid: Tensor | None) -> tuple[Tensor, State]:
         signal, valid_tm, finals = x.transpose(0, 1), time_major_mask(valid), []
         for k, layer in enumerate(self.layers):
             hs, final = layer.sequence(signal, state[k], valid_tm)  # (T, B, H), (B, H)
@@ -140,7 +133,7 @@ class ResidualSkip(RecurrentTopology):
             signal = hs if k == 0 else hs + signal
         return batch_first(self.readout(signal)), tuple(finals)
 
-    def _step(self, x_t: Tensor, state: State) -> tuple[Tensor, State]:
+    def step_unchecked(self, x_t: Tensor, state: State) -> tuple[Tensor, State]:
         signal, new_state = x_t, []
         for k, layer in enumerate(self.layers):
             h = layer.step(signal, state[k])

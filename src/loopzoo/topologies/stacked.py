@@ -70,21 +70,14 @@ class Stacked(RecurrentTopology):
             return signal
         return dropout(signal, rate, self.training)
 
-    def _sequence(
-        self,
-        x: Tensor,
-        state: State,
-        valid: Tensor | None,
-        targets: Tensor | None,
-        teacher_forcing: float,
-    ) -> tuple[Tensor, State]:
+    def _sequence(self, x: Tensor, state: State, valid: Tensor | None) -> tuple[Tensor, State]:
         signal, valid_tm, finals = x.transpose(0, 1), time_major_mask(valid), []
         for k, layer in enumerate(self.layers):
             signal, final = layer.sequence(self._between_layers(signal, k), state[k], valid_tm)
             finals.append(final)
         return batch_first(self.readout(signal)), tuple(finals)
 
-    def _step(self, x_t: Tensor, state: State) -> tuple[Tensor, State]:
+    def step_unchecked(self, x_t: Tensor, state: State) -> tuple[Tensor, State]:
         signal, new_state = x_t, []
         for k, layer in enumerate(self.layers):
             signal = layer.step(self._between_layers(signal, k), state[k])

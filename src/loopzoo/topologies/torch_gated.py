@@ -64,14 +64,7 @@ class _TorchGated(RecurrentTopology):
         parts = hx if isinstance(hx, tuple) else (hx,)
         return tuple(t for part in parts for t in part.unbind(0))
 
-    def _sequence(
-        self,
-        x: Tensor,
-        state: State,
-        valid: Tensor | None,
-        targets: Tensor | None,
-        teacher_forcing: float,
-    ) -> tuple[Tensor, State]:
+    def _sequence(self, x: Tensor, state: State, valid: Tensor | None) -> tuple[Tensor, State]:
         hx = self._to_torch(state)
         if valid is None:
             out, final = self.rnn(x, hx)
@@ -91,7 +84,7 @@ class _TorchGated(RecurrentTopology):
         )
         return self.readout(out), held
 
-    def _step(self, x_t: Tensor, state: State) -> tuple[Tensor, State]:
+    def step_unchecked(self, x_t: Tensor, state: State) -> tuple[Tensor, State]:
         layers = self.options["num_layers"]
         inputs, new_state = x_t, []
         for layer in range(layers):
