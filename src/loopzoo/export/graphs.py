@@ -36,9 +36,9 @@ class _StepGraph(torch.nn.Module):
         self.model = model
 
     def forward(self, x_t: torch.Tensor, state: tuple[torch.Tensor, ...]):
-        # ``_step``, not ``step``: step refuses NaN input by a data-dependent test that cannot be
-        # traced; the graph's typed, shaped inputs stand in for its other checks.
-        y_t, next_state = self.model._step(x_t, tuple(state))
+        # ``step_unchecked``, not ``step``: step refuses NaN input by a data-dependent test that
+        # cannot be traced; the graph's typed, shaped inputs stand in for its other checks.
+        y_t, next_state = self.model.step_unchecked(x_t, tuple(state))
         return (y_t, *next_state)
 
 
