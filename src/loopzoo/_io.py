@@ -3,12 +3,13 @@
 from __future__ import annotations
 
 import json
+import math
 import os
 import tempfile
 from pathlib import Path
 from typing import Any
 
-__all__ = ["atomic_write_bytes", "atomic_write_text", "atomic_write_json"]
+__all__ = ["atomic_write_bytes", "atomic_write_text", "atomic_write_json", "json_safe"]
 
 
 def atomic_write_bytes(path: str | os.PathLike[str], data: bytes) -> None:
@@ -38,6 +39,21 @@ def _current_umask() -> int:
 def atomic_write_text(path: str | os.PathLike[str], text: str) -> None:
     """Write UTF-8 ``text`` to ``path`` atomically."""
     atomic_write_bytes(path, text.encode("utf-8"))
+
+
+def json_safe(value: Any) -> Any:
+    """``value`` with NaN and infinities replaced by None, recursively (JSON has no such numbers).
+
+    >>> json_safe({"loss": float("nan"), "steps": [1.0, float("inf")]})
+    {'loss': None, 'steps': [1.0, None]}
+    """
+    if isinstance(value, float):
+        return value if math.isfinite(value) else None
+    if isinstance(value, dict):
+        return {k: json_safe(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [json_safe(v) for v in value]
+    return value
 
 
 def atomic_write_json(path: str | os.PathLike[str], obj: Any) -> None:

@@ -9,7 +9,8 @@ from hydra import compose, initialize_config_module
 import loopzoo
 from loopzoo.diagnostics import gradient_reach
 from loopzoo.engine import evaluation, module
-from loopzoo.engine.training import baseline_records, train_and_evaluate
+from loopzoo.engine.training import train_and_evaluate
+from loopzoo.harness.baselines import baseline_records
 
 TINY = [
     "task.options.length=12", "+task.options.train_size=256", "+task.options.val_size=64",

@@ -9,6 +9,7 @@ import json
 import pytest
 
 import loopzoo.engine.training as training
+import loopzoo.harness.baselines as baselines
 from loopzoo.harness import records, state
 from loopzoo.harness.errors import ConfigError, OutDirError
 from loopzoo.harness.sweep import plan_sweep, run_sweep
@@ -126,16 +127,16 @@ def test_temporary_files_of_a_killed_write_are_cleared(tmp_path):
 
 
 def test_a_baseline_failure_keeps_the_run_record_and_is_retried(tmp_path, monkeypatch, caplog):
-    real = training.baseline_records
+    real = baselines.baseline_records
 
     def broken(cfg):
         raise RuntimeError("statsmodels is missing")
 
-    monkeypatch.setattr(training, "baseline_records", broken)
+    monkeypatch.setattr(baselines, "baseline_records", broken)
     assert run_sweep(["model=gru", f"out={tmp_path}", *TINY]) == 0
     assert "statsmodels is missing" in caplog.text
     assert [r["kind"] for r in records.load_records(tmp_path)] == ["model"]
-    monkeypatch.setattr(training, "baseline_records", real)
+    monkeypatch.setattr(baselines, "baseline_records", real)
     assert run_sweep(["model=gru,lstm", f"out={tmp_path}", *TINY]) == 0
     assert {r["kind"] for r in records.load_records(tmp_path)} == {"model", "baseline"}
 
@@ -161,7 +162,7 @@ def test_jobs_of_an_earlier_killed_sweep_are_not_counted_in_the_next(tmp_path, c
     # An orphaned worker of a killed sweep finishes its job after a new sweep has started:
     # it carries the old sweep's token, so the new plan's count stays right.
     records.claim_out_dir(tmp_path, None)
-    state.write_plan(tmp_path, 1)
+    state.write_plan(tmp_path, [(["model=gru"], {})])
     monkeypatch.setenv(state.SWEEP_TOKEN, "token-of-a-killed-sweep")
     assert state.count_finished(tmp_path, {"status": "ok"}) is None
     monkeypatch.delenv(state.SWEEP_TOKEN)

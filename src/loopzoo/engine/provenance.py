@@ -1,4 +1,4 @@
-"""When and with what a run was made: UTC time stamps and library versions, for its record."""
+"""When and with what a run was made, for its record: UTC time stamps, library versions, data."""
 
 from __future__ import annotations
 
@@ -6,7 +6,7 @@ import platform
 from datetime import datetime, timezone
 from typing import Any
 
-__all__ = ["utc_now", "versions"]
+__all__ = ["data_record", "utc_now", "versions"]
 
 
 def utc_now() -> str:
@@ -31,3 +31,9 @@ def versions() -> dict[str, Any]:
         "torch_threads": torch.get_num_threads(),
         "torch_interop_threads": torch.get_num_interop_threads(),
     }
+
+
+def data_record(task: Any) -> dict[str, Any]:
+    """The record's ``data``: the user files read (``task.data_files()``) and ``task.describe()``
+    (options chosen, split sizes and boundaries, context rows, filled values, scaling)."""
+    return {"files": task.data_files(), "facts": task.describe()}

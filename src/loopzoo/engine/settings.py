@@ -2,13 +2,17 @@
 
 from __future__ import annotations
 
+import inspect
 import math
 from collections.abc import Mapping
 from dataclasses import dataclass
 from typing import Any
 
+import lightning as L
 from omegaconf import DictConfig, OmegaConf
 
+import loopzoo
+from loopzoo._registry import unknown_choice
 from loopzoo.engine.errors import ConfigError
 
 __all__ = ["FEEDBACK_SELECTIONS", "RunSettings", "read_settings"]
@@ -98,9 +102,10 @@ def read_settings(cfg: DictConfig | Mapping[str, Any]) -> RunSettings:
     trainer, optim = _section(cfg, "trainer"), _section(cfg, "optim")
     protocol = _section(cfg, "protocol")
 
-    for field, value in (("model.name", model.get("name")), ("task.name", task.get("name"))):
-        if not isinstance(value, str) or not value:
-            raise ConfigError(f"{field} = {value!r} is invalid; accepted: a registered name")
+    for field, value, names in (("model.name", model.get("name"), loopzoo.available()),
+                                ("task.name", task.get("name"), loopzoo.tasks.available())):
+        if value not in names:
+            raise ConfigError(str(unknown_choice(field, value, names)))
     feedback = model.get("feedback")
     if feedback is not None and not isinstance(feedback, Mapping):
         raise ConfigError(f"model.feedback = {feedback!r} is invalid; accepted: a mapping or null")
@@ -112,6 +117,12 @@ def read_settings(cfg: DictConfig | Mapping[str, Any]) -> RunSettings:
     for key, instead in _RESERVED_TRAINER_KEYS.items():
         if key in trainer:
             raise ConfigError(f"trainer.{key} is set by the training engine; use {instead}")
+    accepted = [name for name in inspect.signature(L.Trainer.__init__).parameters
+                if name != "self"]
+    for key in trainer:
+        if key not in accepted:
+            error = unknown_choice("Lightning Trainer argument", key, accepted)
+            raise ConfigError(f"trainer.{key}: {error}")
 
     optim = dict(optim)
     optimizer = optim.pop("name", None)

@@ -17,7 +17,6 @@ practice); ``lr_probe_fraction=1.0`` gives full runs per rate instead.
 from __future__ import annotations
 
 import copy
-import inspect
 import math
 import os
 import time
@@ -29,8 +28,9 @@ import torch
 from omegaconf import DictConfig
 
 import loopzoo
-from loopzoo._registry import unknown_choice
+from loopzoo._io import json_safe
 from loopzoo.diagnostics import gradient_reach
+from loopzoo.engine.build import build_model, build_task
 from loopzoo.engine.costs import PeakMemory, step_latency_ms
 from loopzoo.engine.data import training_loader
 from loopzoo.engine.errors import ConfigError
@@ -38,58 +38,14 @@ from loopzoo.engine.evaluation import NonFinitePrediction, SplitScorer
 from loopzoo.engine.lightning_setup import fit_quietly
 from loopzoo.engine.module import SequenceModule
 from loopzoo.engine.optimizers import optimizer_factory
-from loopzoo.engine.provenance import utc_now, versions
+from loopzoo.engine.provenance import data_record, utc_now, versions
 from loopzoo.engine.schedules import TeacherForcingPlan
 from loopzoo.engine.settings import RunSettings, read_settings
 
-__all__ = ["baseline_records", "train_and_evaluate"]
+__all__ = ["train_and_evaluate"]
 
 _REACH_BATCH = 32
 _REACH_MAX_LAG = 200
-
-
-def _finite(value: Any) -> Any:
-    """JSON-safe numbers: NaN and infinities become null, recursively."""
-    if isinstance(value, float):
-        return value if math.isfinite(value) else None
-    if isinstance(value, dict):
-        return {k: _finite(v) for k, v in value.items()}
-    if isinstance(value, (list, tuple)):
-        return [_finite(v) for v in value]
-    return value
-
-
-def _build_task(settings: RunSettings) -> Any:
-    try:
-        return loopzoo.tasks.create(settings.task, seed=settings.seed, **settings.task_options)
-    except (ValueError, TypeError, KeyError) as error:
-        raise ConfigError(f"task {settings.task!r}: {error}") from error
-
-
-def _data_record(task: Any) -> dict[str, Any]:
-    """The record's ``data``: the user files read (``task.data_files()``) and ``task.describe()``
-    (options chosen, split sizes and boundaries, context rows, filled values, scaling)."""
-    return {"files": task.data_files(), "facts": task.describe()}
-
-
-def _build_model(settings: RunSettings, task: Any) -> torch.nn.Module:
-    sizes = {"input_size": task.input_size, "output_size": task.output_size}
-    try:
-        hidden = loopzoo.width_for_budget(
-            settings.model, params=settings.budget, **sizes, **settings.model_options
-        )
-    except (ValueError, TypeError) as error:
-        raise ConfigError(
-            f"task.budget = {settings.budget} cannot be met by model {settings.model!r} with "
-            f"options {settings.model_options}: {error}"
-        ) from error
-    L.seed_everything(settings.seed, verbose=False)
-    try:
-        return loopzoo.create(
-            settings.model, hidden_size=hidden, **sizes, **settings.model_options
-        )
-    except (ValueError, TypeError) as error:
-        raise ConfigError(f"model {settings.model!r}: {error}") from error
 
 
 def _feedback_plan(settings: RunSettings, model: torch.nn.Module) -> TeacherForcingPlan:
@@ -103,15 +59,6 @@ def _feedback_plan(settings: RunSettings, model: torch.nn.Module) -> TeacherForc
         return TeacherForcingPlan.from_options(settings.feedback, total_steps=settings.max_steps)
     except ValueError as error:
         raise ConfigError(str(error)) from error
-
-
-def _check_trainer(settings: RunSettings) -> None:
-    accepted = [name for name in inspect.signature(L.Trainer.__init__).parameters
-                if name != "self"]
-    for key in settings.trainer:
-        if key not in accepted:
-            error = unknown_choice("Lightning Trainer argument", key, accepted)
-            raise ConfigError(f"trainer.{key}: {error}")
 
 
 def _check_protocol(settings: RunSettings, train_rows: int) -> None:
@@ -229,9 +176,9 @@ def train_and_evaluate(cfg: DictConfig, run_dir: Path) -> dict[str, Any]:
     """Train the configured topology on the configured task and return the record body.
 
     The body holds every record field except ``schema``, ``run_id`` and ``config`` (added by the
-    records module). Bad configs (unknown names or keys, impossible budgets) raise ConfigError
-    before training; a run that diverges or fails returns ``status`` ``"diverged"`` / ``"failed"``
-    with the ``reason`` instead of raising.
+    records module, which also turns non-finite numbers into null). Bad configs (unknown names or
+    keys, impossible budgets) raise ConfigError before training; a run that diverges or fails
+    returns ``status`` ``"diverged"`` / ``"failed"`` with the ``reason`` instead of raising.
 
     Example::
 
@@ -241,9 +188,8 @@ def train_and_evaluate(cfg: DictConfig, run_dir: Path) -> dict[str, Any]:
     started, clock = utc_now(), time.perf_counter()
     run_dir = Path(run_dir)
     settings = read_settings(cfg)
-    _check_trainer(settings)
-    task = _build_task(settings)
-    model = _build_model(settings, task)
+    task = build_task(settings)
+    model = build_model(settings, task)
     plan = _feedback_plan(settings, model)
     run = _Run(settings, task, model, plan, run_dir)
     body: dict[str, Any] = {
@@ -256,7 +202,7 @@ def train_and_evaluate(cfg: DictConfig, run_dir: Path) -> dict[str, Any]:
         "versions": versions(),
         "primary": {"name": task.metric, "goal": task.goal},
         "metrics": None, "lr": None, "curves": None, "cost": None, "gradient_reach": None,
-        "feedback": None, "started": started, "finished": None, "data": _data_record(task),
+        "feedback": None, "started": started, "finished": None, "data": data_record(task),
     }
     if run.feeds_back:
         body["feedback"] = {**plan.describe(), "fed_back": model.options.get("fed_back"),
@@ -269,7 +215,7 @@ def train_and_evaluate(cfg: DictConfig, run_dir: Path) -> dict[str, Any]:
     body["finished"] = utc_now()
     if body["cost"] is not None:
         body["cost"]["wall_seconds"] = time.perf_counter() - clock
-    return _finite(body)
+    return body
 
 
 def _train(run: _Run, body: dict[str, Any]) -> None:
@@ -314,7 +260,7 @@ def _train(run: _Run, body: dict[str, Any]) -> None:
     body["metrics"] = _metrics(val, test)
     metadata = {"task": run.settings.task, "task_options": run.settings.task_options,
                 "seed": run.settings.seed, "metrics": body["metrics"]["test"]}
-    saved = loopzoo.save(model, run.run_dir / "artifact", _finite(metadata))
+    saved = loopzoo.save(model, run.run_dir / "artifact", json_safe(metadata))
     # Relative to the output directory (DIR/runs/<run_id>/artifact), so DIR can be moved.
     body["artifact"] = Path(os.path.relpath(saved, run.run_dir.parent.parent)).as_posix()
     batched = min(run.settings.batch_size, len(run.val.x))
@@ -334,33 +280,3 @@ def _reach_record(init: list[float], final: list[float]) -> dict[str, Any]:
 
     return {"lags": list(range(len(init))), "init": normalised(init), "final": normalised(final),
             "init_raw": init, "final_raw": final}
-
-
-def baseline_records(cfg: DictConfig) -> list[dict[str, Any]]:
-    """One record body per classical baseline of the configured task (``task.baselines()``).
-
-    Each has ``kind`` ``"baseline"``, ``model`` the baseline's name, test metrics only, and null
-    parameters, cost, curves and gradient reach.
-
-    Example::
-
-        [b["model"] for b in baseline_records(cfg)]   # e.g. ["predict-mean", ...]
-    """
-    started = utc_now()
-    settings = read_settings(cfg)
-    task = _build_task(settings)
-    data = _data_record(task)
-    records = []
-    for name, metrics in task.baselines().items():
-        records.append(_finite({
-            "kind": "baseline", "status": "ok", "reason": None, "diverged_at_step": None,
-            "model": name, "task": settings.task, "suite": settings.suite, "seed": settings.seed,
-            "params": None, "budget": settings.budget,
-            "sizes": {"input_size": task.input_size, "output_size": task.output_size,
-                      "hidden_size": None},
-            "versions": versions(), "primary": {"name": task.metric, "goal": task.goal},
-            "metrics": {"test": {k: float(v) for k, v in metrics.items()}},
-            "lr": None, "curves": None, "cost": None, "gradient_reach": None, "feedback": None,
-            "started": started, "finished": utc_now(), "data": data,
-        }))
-    return records

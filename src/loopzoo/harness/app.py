@@ -22,7 +22,7 @@ from omegaconf import DictConfig, OmegaConf, open_dict
 
 from loopzoo._io import atomic_write_json, atomic_write_text
 from loopzoo.harness import records, runids, state
-from loopzoo.harness.config import cores, finish_config
+from loopzoo.harness.config import cores
 from loopzoo.harness.errors import ConfigError, OutDirError
 from loopzoo.harness.shipped import CONFIG_MODULE
 
@@ -76,7 +76,7 @@ def ensure_baselines(cfg: DictConfig) -> int:
     Returns how many were written now (0 when all exist). Parallel jobs sharing a (task, seed)
     wait on one lock, so the baselines are computed once.
     """
-    from loopzoo.engine.training import baseline_records
+    from loopzoo.harness.baselines import baseline_records
 
     out = Path(cfg.out)
     group = runids.baseline_group(cfg)
@@ -178,6 +178,17 @@ def _run_locked(cfg: DictConfig, out: Path, sweep: bool) -> Outcome:
                    time.perf_counter() - tick, reason)
 
 
+def _planned(out: str, overrides: list[str]) -> DictConfig:
+    """The job's config as ``plan_sweep`` finished it (each job is finished once, up front)."""
+    planned = state.planned_job(out, overrides)
+    if planned is None:
+        raise ConfigError(f"job {' '.join(overrides)} is not in the sweep plan of out={out}; "
+                          "start sweeps with `loopzoo sweep`")
+    job = OmegaConf.create(planned)
+    OmegaConf.set_struct(job, True)
+    return job
+
+
 def sweep_job(cfg: DictConfig) -> dict[str, Any]:
     """Hydra task function of one sweep job; never raises, so the sweep always goes on."""
     hydra_cfg = HydraConfig.get()
@@ -185,7 +196,7 @@ def sweep_job(cfg: DictConfig) -> dict[str, Any]:
     logging.getLogger("lightning").setLevel(logging.WARNING)
     tick = time.perf_counter()
     try:
-        job = finish_config(cfg, overrides)
+        job = _planned(cfg.out, overrides)
         outcome = run_one(job, threads=threads_for_launcher(hydra_cfg.launcher), sweep=True)
     except (ConfigError, OutDirError) as error:
         outcome = Outcome("-", str(cfg.model.name), str(cfg.task.name), int(cfg.seed), "refused",

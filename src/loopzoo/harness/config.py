@@ -18,8 +18,8 @@ from hydra.errors import HydraException, MissingConfigException
 from omegaconf import DictConfig, OmegaConf
 from omegaconf.errors import MissingMandatoryValue, OmegaConfBaseException
 
-import loopzoo
 from loopzoo._registry import unknown_choice
+from loopzoo.engine.settings import read_settings
 from loopzoo.harness.errors import ConfigError
 from loopzoo.harness.shipped import CONFIG_MODULE, shipped_options
 
@@ -201,16 +201,9 @@ def _check_names(cfg: DictConfig) -> None:
         if OmegaConf.select(cfg, key, default="<missing>") == "<missing>":
             raise ConfigError(f"{key} is required; the shipped configs set it (was it deleted "
                               f"with ~{key}?)")
-    topologies = loopzoo.available()
-    if cfg.model.name not in topologies:
-        raise ConfigError(str(unknown_choice("model.name", cfg.model.name, topologies)))
-    tasks = loopzoo.tasks.available()
-    if cfg.task.name not in tasks:
-        raise ConfigError(str(unknown_choice("task.name", cfg.task.name, tasks)))
-    if isinstance(cfg.seed, bool) or not isinstance(cfg.seed, int) or cfg.seed < 0:
-        raise ConfigError(f"seed must be a non-negative integer, got {cfg.seed!r}")
     if not isinstance(cfg.out, str) or not cfg.out:
         raise ConfigError(f"out must be a directory path, got {cfg.out!r}")
+    read_settings(cfg)  # what the engine reads (names, seed, trainer, optimiser, protocol)
     _check_files(cfg)
 
 
@@ -232,7 +225,8 @@ def _check_files(cfg: DictConfig) -> None:
 
 
 def finish_config(cfg: DictConfig, overrides: list[str]) -> DictConfig:
-    """Apply the suite's ``per_task`` settings, resolve, check names, drop ``per_task``.
+    """Apply the suite's ``per_task`` settings, resolve, check the run's settings, drop
+    ``per_task``.
 
     The result is a struct-mode ``DictConfig`` without the ``hydra`` node: what a run records.
     Missing required values (``???``, e.g. the csv task's path) are refused by name.

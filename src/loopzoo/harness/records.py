@@ -25,7 +25,7 @@ from importlib import resources
 from pathlib import Path
 from typing import Any
 
-from loopzoo._io import atomic_write_json
+from loopzoo._io import atomic_write_json, json_safe
 from loopzoo.engine.provenance import utc_now, versions
 from loopzoo.harness.errors import OutDirError
 from loopzoo.harness.shipped import CONFIG_MODULE
@@ -85,8 +85,8 @@ def make_record(
 ) -> dict[str, Any]:
     """A full record: ``schema``, ``run_id``, ``kind`` and ``config`` added to ``body``.
 
-    Every field of ``BODY_FIELDS`` is present (missing ones are null); ``status`` must be one of
-    ``STATUSES``.
+    Every field of ``BODY_FIELDS`` is present (missing ones are null), NaN and infinities become
+    null; ``status`` must be one of ``STATUSES``.
     """
     status = body.get("status")
     if status not in STATUSES:
@@ -98,7 +98,7 @@ def make_record(
     record = {field: body.get(field) for field in BODY_FIELDS}
     record.update({k: v for k, v in body.items() if k not in record})
     record.update({"schema": SCHEMA, "run_id": run_id, "kind": kind, "config": config})
-    return record
+    return json_safe(record)
 
 
 def failed_body(cfg: dict[str, Any], reason: str, started: str) -> dict[str, Any]:

@@ -19,8 +19,8 @@ from loopzoo._io import atomic_write_json
 from loopzoo.harness.errors import OutDirError
 
 __all__ = [
-    "SWEEP_TOKEN", "state_dir", "file_lock", "sweep_lock", "write_plan", "read_plan",
-    "count_finished",
+    "SWEEP_TOKEN", "state_dir", "file_lock", "sweep_lock", "write_plan", "planned_job",
+    "read_plan", "count_finished", "end_plan",
 ]
 
 SWEEP_TOKEN = "LOOPZOO_SWEEP_TOKEN"  # environment variable: the sweep a job was launched by
@@ -60,17 +60,41 @@ def sweep_lock(out: str | Path) -> Iterator[None]:
         yield
 
 
-def write_plan(out: str | Path, total: int) -> str:
-    """Start a sweep's progress count at 0 of ``total``; returns the sweep's token.
+def _job_key(overrides: list[str]) -> str:
+    # Hydra hands a job only its task overrides: hydra/... and hydra.... ones go to the launcher.
+    task = [o for o in overrides if not o.lstrip("+~").startswith("hydra")]
+    return json.dumps(sorted(task))
 
-    The launcher hands the token to each job it runs in the environment variable
-    ``SWEEP_TOKEN``; jobs of an earlier sweep whose parent was killed (orphaned workers still
-    finishing their runs) carry another token and are not counted in this plan.
+
+def write_plan(out: str | Path, jobs: list[tuple[list[str], dict[str, Any]]]) -> str:
+    """Start a sweep's progress count at 0 of ``len(jobs)``; returns the sweep's token.
+
+    Each job's finished config (``(overrides, config)`` pairs) is kept for ``planned_job``, so a
+    launched job reads it instead of composing again. The launcher hands the token to each job
+    it runs in the environment variable ``SWEEP_TOKEN``; jobs of an earlier sweep whose parent
+    was killed (orphaned workers still finishing their runs) carry another token and are not
+    counted in this plan.
     """
     token = uuid.uuid4().hex
-    atomic_write_json(state_dir(out) / "plan.json",
-                      {"total": total, "finished": [], "token": token})
+    folder = state_dir(out)
+    atomic_write_json(folder / "jobs.json", {_job_key(o): config for o, config in jobs})
+    atomic_write_json(folder / "plan.json",
+                      {"total": len(jobs), "finished": [], "token": token})
     return token
+
+
+def planned_job(out: str | Path, overrides: list[str]) -> dict[str, Any] | None:
+    """The finished config ``write_plan`` kept for the job of ``overrides``, or None."""
+    path = Path(out) / ".state" / "jobs.json"
+    if not path.exists():
+        return None
+    return json.loads(path.read_text(encoding="utf-8")).get(_job_key(overrides))
+
+
+def end_plan(out: str | Path) -> None:
+    """Remove the plan and its jobs once the sweep is over."""
+    for name in ("plan.json", "jobs.json"):
+        (Path(out) / ".state" / name).unlink(missing_ok=True)
 
 
 def read_plan(out: str | Path) -> dict[str, Any] | None:

@@ -97,7 +97,9 @@ def run_sweep(overrides: list[str]) -> int:
             f"out={plan.out}" + (f", suite={plan.suite}" if plan.suite else ""),
             flush=True,
         )
-        token = state.write_plan(plan.out, len(ids))
+        token = state.write_plan(plan.out, [(job_overrides, OmegaConf.to_container(job))
+                                            for job_overrides, job in zip(
+                                                plan.overrides, plan.jobs, strict=True)])
         # Hydra sets hydra.job.env_set in each job's process before the job runs, also in
         # reused workers; it is launcher configuration, not part of the job's config.
         argv = sys.argv
@@ -108,7 +110,7 @@ def run_sweep(overrides: list[str]) -> int:
         finally:
             sys.argv = argv
         finished = (state.read_plan(plan.out) or {}).get("finished", [])
-        (plan.out / ".state" / "plan.json").unlink(missing_ok=True)
+        state.end_plan(plan.out)
     counts = Counter(outcome["status"] for outcome in finished)
     summary = ", ".join(f"{n} {status}" for status, n in sorted(counts.items()))
     print(f"sweep done in {time.perf_counter() - tick:.0f} s: {summary or 'nothing ran'}; "
