@@ -1,7 +1,7 @@
 """Teacher-forcing schedules of scheduled sampling.
 
 Formulas: Bengio, Vinyals, Jaitly & Shazeer, "Scheduled Sampling for Sequence Prediction with
-Recurrent Neural Networks", NIPS 2015, section 2.4 (from memory, as REFERENCES.md marks them):
+Recurrent Neural Networks", NIPS 2015, section 2.4 (from memory):
 linear e_i = max(e_min, k - c i), exponential e_i = k^i, inverse sigmoid e_i = k / (k + exp(i/k)).
 """
 

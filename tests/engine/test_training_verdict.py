@@ -3,7 +3,7 @@
 Adding problem (two-channel variant, Arjovsky, Shah & Bengio 2016): predicting the mean scores
 MSE = 1/6. Gated recurrences (LSTM, GRU) learn such lags where a plain tanh recurrence struggles
 (Hochreiter & Schmidhuber 1997; Le, Jaitly & Hinton 2015, their adding-problem figure; cited
-from memory, as in REFERENCES.md).
+from memory).
 """
 
 from pathlib import Path

@@ -1,4 +1,4 @@
-"""The task contract (DESIGN.md section 2, DEVELOPERS.md "Tasks"), driven by the registry.
+"""The task contract (README and DEVELOPERS.md "Tasks"), driven by the registry.
 
 A newly registered task is covered here without new test code; tasks that read a user's file get
 one written by the fixture below.

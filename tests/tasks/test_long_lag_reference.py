@@ -36,8 +36,9 @@ def test_adding_layout_matches_definition():
 
 @pytest.mark.parametrize("length, published", [(100, 0.17329), (200, 0.09452), (500, 0.03999)])
 def test_copy_memoryless_cross_entropy(length, published):
-    # Arjovsky, Shah & Bengio (ICML 2016): the memoryless strategy scores 10 ln 8 / (T + 20);
-    # 0.17329 / 0.09452 / 0.03999 at T = 100 / 200 / 500 as quoted in REFERENCES.md.
+    # Arjovsky, Shah & Bengio, "Unitary Evolution Recurrent Neural Networks" (ICML 2016), copy
+    # memory task: the memoryless strategy scores 10 ln 8 / (T + 20), i.e. 0.17329 / 0.09452 /
+    # 0.03999 at T = 100 / 200 / 500 (the formula from memory; the values computed from it).
     task = loopzoo.tasks.create("copy", seed=0, length=length, train_size=2, val_size=2,
                                 test_size=50)
     formula = 10 * math.log(8) / (length + 20)

@@ -1,5 +1,6 @@
-"""Reber task against the grammar's automaton (Reber 1967; transitions as listed in REFERENCES.md,
-the benchmark form of Cleeremans, Servan-Schreiber & McClelland 1989)."""
+"""Reber task against the grammar's automaton (Reber, "Implicit learning of artificial grammars",
+1967, figure 1; the benchmark form of Cleeremans, Servan-Schreiber & McClelland, "Finite state
+automata and simple recurrent networks", Neural Computation 1989; transitions from memory)."""
 
 import math
 
@@ -86,7 +87,7 @@ def test_variable_lengths_and_long_dependency(task):
 
 
 def test_plain_form_contains_the_shortest_strings():
-    # Shortest Reber strings are BTXSE and BPVVE (REFERENCES.md); each has probability 1/16.
+    # The shortest strings the automaton accepts are BTXSE and BPVVE; each has probability 1/16.
     plain = loopzoo.tasks.create("reber", seed=0, embedded=False, train_size=500)
     strings = decode(plain.split("train"))
     assert all(walk(s) is not None for s in strings)

@@ -70,7 +70,8 @@ def test_sunspots_parts_are_chronological_and_scaled_on_train_only():
 
 
 def test_co2_reports_and_never_scores_filled_weeks():
-    # statsmodels co2: 2,284 weekly rows, 59 missing (Keeling & Whorf; REFERENCES.md).
+    # statsmodels co2 (Keeling & Whorf, Mauna Loa weekly CO2, as statsmodels.datasets.co2
+    # carries it): 2,284 weekly rows, 59 of them missing.
     task = loopzoo.tasks.create("co2")
     facts = task.describe()
     assert facts["rows"] == 2284

@@ -1,4 +1,4 @@
-"""The module contract (DESIGN.md §2), driven by the registry: every topology, present or future.
+"""The module contract (README "Using the modules"), driven by the registry: every topology.
 
 Hypothesis draws sizes, lengths and split points; comparisons run in float64 so only rounding
 differences are tolerated.
