@@ -2,7 +2,7 @@
 
 - ``step``: ``(x_t, state_0, ..) -> (y_t, next_state_0, ..)``, dynamic batch. Every topology.
 - ``sequence``: ``(x, state_0, ..) -> (y, final_state_0, ..)``, dynamic batch and time. The time
-  loop is ``torch._higher_order_ops.scan`` over the step (a private, prototype torch API): a
+  loop is ``loopzoo._torch_scan.scan`` over the step (torch's private, prototype scan): a
   Python loop would freeze the traced length. For output feedback this is free running.
 - ``sequence-teacher-forced``: ``(x, targets, state_0, ..) -> (y, final_state_0, ..)`` for
   topologies that feed back outputs: their teacher-forced pass has no time loop to freeze.
@@ -16,10 +16,10 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import torch
-from torch._higher_order_ops import scan
 from torch.export import Dim
 
 from loopzoo._registry import unknown_choice
+from loopzoo._torch_scan import scan
 
 __all__ = ["GRAPHS", "GraphSpec", "graph_spec", "graphs_for"]
 

@@ -5,7 +5,6 @@ from __future__ import annotations
 
 import difflib
 import os
-import re
 from collections.abc import Iterator
 from contextlib import contextmanager
 from typing import Any
@@ -21,6 +20,7 @@ from omegaconf.errors import MissingMandatoryValue, OmegaConfBaseException
 from loopzoo._registry import unknown_choice
 from loopzoo.engine.settings import read_settings
 from loopzoo.harness.errors import ConfigError
+from loopzoo.harness.hydra_private import missing_config, not_in_struct
 from loopzoo.harness.shipped import CONFIG_MODULE, shipped_options
 
 __all__ = [
@@ -120,14 +120,13 @@ def composer() -> Iterator[Any]:
 
 def _explain(error: Exception, overrides: list[str]) -> ConfigError:
     message = str(error)
-    missing = re.search(r"Could not find '([^']+)'", message)
+    missing = missing_config(message)
     if isinstance(error, MissingConfigException) and missing:
-        group, _, name = missing.group(1).rpartition("/")
+        group, _, name = missing.rpartition("/")
         if group in GROUPS:
             return ConfigError(str(unknown_choice(group, name, group_options(group))))
-    not_struct = re.search(r"Could not (?:override|append to|delete from) '([^']+)'", message)
-    if not_struct:
-        key = not_struct.group(1)
+    key = not_in_struct(message)
+    if key:
         groups_only = [
             o for o in overrides if o.split("=", 1)[0].lstrip("+~") in GROUPS and "," not in o
         ]

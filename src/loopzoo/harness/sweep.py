@@ -14,12 +14,12 @@ from collections import Counter
 from dataclasses import dataclass
 from pathlib import Path
 
-from hydra._internal.core_plugins.basic_sweeper import BasicSweeper
 from omegaconf import DictConfig, OmegaConf
 
 from loopzoo.harness import records, runids, state
 from loopzoo.harness.config import compose_job, composer, parse_overrides
 from loopzoo.harness.errors import ConfigError
+from loopzoo.harness.hydra_private import run_multirun, split_jobs
 
 __all__ = ["SweepPlan", "plan_sweep", "run_sweep"]
 
@@ -58,8 +58,7 @@ def plan_sweep(overrides: list[str]) -> SweepPlan:
     with composer():
         base = compose_job(fixed, with_hydra=True)
         combined = parse_overrides(_sweep_lists(base) + list(overrides))
-        batches = BasicSweeper.split_arguments(combined, None)
-        job_overrides = [list(job) for batch in batches for job in batch]
+        job_overrides = split_jobs(combined)
         jobs = []
         for job in job_overrides:
             try:
@@ -102,13 +101,8 @@ def run_sweep(overrides: list[str]) -> int:
                                                 plan.overrides, plan.jobs, strict=True)])
         # Hydra sets hydra.job.env_set in each job's process before the job runs, also in
         # reused workers; it is launcher configuration, not part of the job's config.
-        argv = sys.argv
-        sys.argv = ["loopzoo", "--multirun", *overrides,
-                    f"+hydra.job.env_set.{state.SWEEP_TOKEN}={token}"]
-        try:
-            hydra_sweep_entry()
-        finally:
-            sys.argv = argv
+        run_multirun(hydra_sweep_entry,
+                     [*overrides, f"+hydra.job.env_set.{state.SWEEP_TOKEN}={token}"])
         finished = (state.read_plan(plan.out) or {}).get("finished", [])
         state.end_plan(plan.out)
     counts = Counter(outcome["status"] for outcome in finished)
