@@ -314,7 +314,8 @@ def _train(run: _Run, body: dict[str, Any]) -> None:
     body["metrics"] = _metrics(val, test)
     metadata = {"task": run.settings.task, "task_options": run.settings.task_options,
                 "seed": run.settings.seed, "metrics": body["metrics"]["test"]}
-    saved = loopzoo.save(model, run.run_dir / "artifact", _finite(metadata))
+    saved = loopzoo.save(model, run.run_dir / "artifact", _finite(metadata),
+                         preprocessing=run.task.preprocessing())
     # Relative to the output directory (DIR/runs/<run_id>/artifact), so DIR can be moved.
     body["artifact"] = Path(os.path.relpath(saved, run.run_dir.parent.parent)).as_posix()
     batched = min(run.settings.batch_size, len(run.val.x))
