@@ -466,3 +466,31 @@ def test_onnxruntime_alone_serves_data_unit_forecasts_from_export_json(tmp_path)
     expected, _ = loopzoo.load(tmp_path / "artifact").predictor.forecasts(
         recent[["sst", "season"]].to_numpy())
     np.testing.assert_allclose(served, expected, rtol=1e-5)
+
+
+def test_an_artifact_of_a_scaled_task_without_its_description_is_refused_not_served(tmp_path):
+    from loopzoo.serve import PredictionError, StreamRunner
+
+    rows = _elnino_csv(tmp_path / "sst.csv")
+    options = {"path": str(tmp_path / "sst.csv"), "target": "sst", "window": 6}
+    task = loopzoo.tasks.create("csv", **options)
+    # as the engine wrote artifacts before they carried their preprocessing (version 1)
+    loopzoo.save(_model(task), tmp_path / "old", metadata={"task": "csv", "task_options": options})
+    description = json.loads((tmp_path / "old" / "model.json").read_text())
+    (tmp_path / "old" / "model.json").write_text(json.dumps({**description, "version": 1}))
+    model = loopzoo.load(tmp_path / "old")  # still a module
+    with pytest.raises(ValueError, match="trained on task 'csv', which scales, windows"):
+        StreamRunner(model)
+    with pytest.raises(PredictionError, match=r"Re-save it .*loopzoo.tasks.create\('csv'"):
+        model.predictor.predict(rows[["sst"]].to_numpy())
+    loopzoo.save(model, tmp_path / "again", metadata={"task": "csv"})  # still undescribed
+    with pytest.raises(ValueError, match="does not describe that"):
+        StreamRunner(loopzoo.load(tmp_path / "again"))
+    loopzoo.save(model, tmp_path / "new", preprocessing=task.preprocessing())
+    renewed = loopzoo.load(tmp_path / "new")
+    StreamRunner(renewed)  # described now: served as trained
+    loopzoo.save(renewed, tmp_path / "copy")  # a described model keeps its description
+    assert loopzoo.load(tmp_path / "copy").predictor.preprocessing == task.preprocessing()
+    adding = loopzoo.create("gru", input_size=2, output_size=1, hidden_size=3)
+    loopzoo.save(adding, tmp_path / "plain", metadata={"task": "adding"})
+    StreamRunner(loopzoo.load(tmp_path / "plain"))  # inputs as given: nothing to describe

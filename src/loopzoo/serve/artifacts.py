@@ -92,8 +92,9 @@ def save(
         )
     if metadata is not None and not isinstance(metadata, Mapping):
         raise TypeError(f"metadata must be a dict or None, got {type(metadata).__name__}")
-    if preprocessing is None and isinstance(getattr(model, "predictor", None), Predictor):
-        preprocessing = model.predictor.preprocessing
+    loaded = getattr(model, "predictor", None)
+    if preprocessing is None and isinstance(loaded, Predictor) and loaded.kind != "arrays":
+        preprocessing = loaded.preprocessing
     if preprocessing is not None:
         preprocessing = _json_checked("preprocessing", dict(preprocessing))
         parse_preprocessing(preprocessing, model.input_size, model.output_size)
@@ -236,8 +237,33 @@ def _load_artifact(directory: Path) -> torch.nn.Module:
     except (SafetensorError, ValueError) as error:
         raise ArtifactError(f"{weights_path}: not a valid safetensors file ({error})") from None
     _fill(model, tensors, weights_path)
-    model.predictor = Predictor(model, preprocessing)
+    refusal = None if preprocessing is not None else _undescribed(description, directory)
+    model.predictor = Predictor(model, preprocessing, refusal=refusal)
     return model
+
+
+def _undescribed(description: dict[str, Any], directory: Path) -> str | None:
+    """Why the model must not be served, when its metadata names a task that scales, windows or
+    encodes data (it has its own ``preprocessing``) but the artifact does not describe it (an
+    artifact from before version 2, or saved without ``preprocessing``); else None."""
+    from loopzoo.tasks import TASKS, Task
+
+    name = description["metadata"].get("task")
+    try:
+        task = TASKS.get(name)
+    except (TypeError, ValueError):
+        return None
+    if task.preprocessing is Task.preprocessing:
+        return None
+    options = description["metadata"].get("task_options", {})
+    return (
+        f"artifact {str(directory)!r} was trained on task {name!r}, which scales, windows or "
+        "encodes its data, but its model.json does not describe that ('preprocessing' is "
+        "missing: written before artifacts carried it), so predictions or a stream would "
+        "silently differ from training. Re-save it with the task's description: "
+        f"loopzoo.save(model, DIR, metadata, preprocessing=loopzoo.tasks.create({name!r}, "
+        f"**{options!r}).preprocessing())"
+    )
 
 
 def _header_shapes(weights: bytes, path: Path) -> dict[str, tuple[str, list[int]]]:

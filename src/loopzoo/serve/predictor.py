@@ -127,14 +127,17 @@ class Predictor:
 
     ``preprocessing`` is the artifact's description (None: plain arrays). The reading convention
     is the one the model was trained with: windows from the zero state for series, chunks from the
-    zero state for text, whole sequences from the zero state for sequence classes.
+    zero state for text, whole sequences from the zero state for sequence classes. ``refusal``
+    marks a model trained on data the artifact does not describe: ``predict`` and
+    ``StreamRunner`` then refuse with that message instead of serving it differently.
     """
 
-    def __init__(self, model: torch.nn.Module,
-                 preprocessing: Mapping[str, Any] | None = None) -> None:
+    def __init__(self, model: torch.nn.Module, preprocessing: Mapping[str, Any] | None = None,
+                 *, refusal: str | None = None) -> None:
         self.model = model
         self.preprocessing = dict(preprocessing or arrays_preprocessing())
         self.reading = parse(self.preprocessing, model.input_size, model.output_size)
+        self.refusal = refusal
 
     @property
     def kind(self) -> str:
@@ -162,6 +165,8 @@ class Predictor:
         arrays: an (N, T, I) or (T, I) array of model inputs -> the outputs as an array (softmax
         probabilities for class outputs).
         """
+        if self.refusal:
+            raise PredictionError(self.refusal)
         reading = self.reading
         if isinstance(reading, SeriesReading):
             return self._forecast(reading, self._rows(data, source, reading.columns))

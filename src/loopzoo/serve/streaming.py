@@ -80,6 +80,8 @@ class StreamRunner:
         self._dtype = self._initial[0].dtype if self._initial else torch.float32
         self._states: dict[Hashable, tuple[torch.Tensor, ...]] = {}
         predictor = getattr(model, "predictor", None)
+        if predictor is not None and predictor.refusal:
+            raise ValueError(f"StreamRunner: {predictor.refusal}")
         self._reading = None if predictor is None or predictor.kind == "arrays" else (
             predictor.reading)
         self._history: dict[Hashable, list[np.ndarray]] = {}  # series: the rolling window
