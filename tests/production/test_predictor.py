@@ -494,3 +494,13 @@ def test_an_artifact_of_a_scaled_task_without_its_description_is_refused_not_ser
     adding = loopzoo.create("gru", input_size=2, output_size=1, hidden_size=3)
     loopzoo.save(adding, tmp_path / "plain", metadata={"task": "adding"})
     StreamRunner(loopzoo.load(tmp_path / "plain"))  # inputs as given: nothing to describe
+
+
+def test_an_out_path_under_a_file_is_refused(artifacts, tmp_path, capsys):
+    from loopzoo.cli import main
+
+    artifacts["rows"].to_csv(tmp_path / "x.csv", index=False)
+    (tmp_path / "file").write_text("")
+    code = main(["predict", str(artifacts["dir"] / "series"), str(tmp_path / "x.csv"),
+                 "--out", str(tmp_path / "file" / "forecasts.csv")])
+    assert code == 2 and "loopzoo predict:" in capsys.readouterr().err

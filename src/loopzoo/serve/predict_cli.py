@@ -52,10 +52,10 @@ def main(argv: list[str] | None = None) -> int:
                 "loopzoo.load(ARTIFACT).predictor.predict(array)")
         data = _read_text(args.data) if predictor.kind == "next-symbol" else _read_rows(args.data)
         table = predictor.predict(data, source=str(args.data))
+        _io.atomic_write_text(args.out, table.to_csv(index=False))
     except (ArtifactError, PredictionError, ValueError, OSError) as error:
         print(f"loopzoo predict: {error}", file=sys.stderr)
         return 2
-    _io.atomic_write_text(args.out, table.to_csv(index=False))
     print(f"{args.out}: {len(table)} rows")
     return 0
 
