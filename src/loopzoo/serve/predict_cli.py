@@ -1,6 +1,6 @@
 """``loopzoo predict ARTIFACT DATAFILE --out FILE``: a saved model's predictions for a data file.
 
-DATAFILE is a CSV file for series and sequence-class artifacts, a UTF-8 text file for
+DATAFILE is a CSV or Parquet file for series and sequence-class artifacts, a UTF-8 text file for
 next-symbol artifacts. FILE is written as CSV, atomically, and only when every input is good; bad
 input exits with code 2 and one paragraph naming the column or symbol and what the artifact
 expects.
@@ -11,10 +11,11 @@ from __future__ import annotations
 import argparse
 import sys
 from pathlib import Path
+from typing import Any
 
 from loopzoo import _io
 from loopzoo.serve.artifacts import ArtifactError, load
-from loopzoo.serve.predictor import PredictionError, Rows
+from loopzoo.serve.predictor import PredictionError
 
 __all__ = ["main"]
 
@@ -60,14 +61,13 @@ def main(argv: list[str] | None = None) -> int:
     return 0
 
 
-def _read_rows(path: Path) -> Rows:
-    from loopzoo.tasks._csv_table import read_csv_table
+def _read_rows(path: Path) -> Any:
+    from loopzoo.tasks._table import read_table
 
-    table = read_csv_table(path)
-    return Rows.of_cells(str(path), table.header, table.rows, table.lines)
+    return read_table(path)  # the reader training used: CSV or Parquet, errors naming the line
 
 
 def _read_text(path: Path) -> str:
     from loopzoo.tasks.text_file import read_text
 
-    return read_text(path)
+    return read_text(path)[0]  # the text, decoded as training decoded it

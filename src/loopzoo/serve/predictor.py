@@ -7,16 +7,18 @@ built from the artifact's ``preprocessing`` description (see ``loopzoo.serve.pre
     table = model.predictor.predict(frame)      # series: a DataFrame (or an (L, C) array) of rows
     table = model.predictor.predict("some text")  # next-symbol: a string
 
-``predict`` returns a pandas DataFrame (pandas is imported only then): forecasts with their
-origins, horizons and times for series; next-symbol scores for text; a label and class
-probabilities per sequence. Input the artifact cannot read raises ``PredictionError`` naming the
-column or symbol and what the artifact expects.
+Tables are read as training read them (``loopzoo.tasks._table``: the same numbers, missing
+values and time parsing). ``predict`` returns a pandas DataFrame (pandas is imported only then):
+forecasts with their origins, horizons and times for series; next-symbol scores for text; a label
+and class probabilities per sequence. Input the artifact cannot read raises ``PredictionError``
+naming the column or symbol and what the artifact expects.
 """
 
 from __future__ import annotations
 
 import math
 from collections.abc import Mapping
+from pathlib import Path
 from typing import Any
 
 import numpy as np
@@ -30,8 +32,9 @@ from loopzoo.serve.preprocessing import (
     arrays_preprocessing,
     parse,
 )
+from loopzoo.tasks._table import Table
 
-__all__ = ["PredictionError", "Predictor", "Rows"]
+__all__ = ["PredictionError", "Predictor"]
 
 _BATCH = 512
 
@@ -40,86 +43,45 @@ class PredictionError(ValueError):
     """Data the artifact cannot predict from; the message names the column or symbol."""
 
 
-class Rows:
-    """Named columns of raw cells and, per row, where it came from (file line or frame row).
+def _table(data: Any, source: str, columns: tuple[str, ...]) -> tuple[Table, bool]:
+    """``data`` as the tasks' ``Table`` (the same cells, numbers and time parsing as training)
+    and whether its rows are already in time order (an array has no time column)."""
+    if isinstance(data, Table):
+        return data, False
+    import pandas as pd
 
-    Built from a pandas DataFrame (``Rows.of_frame``) or from a CSV file's header and string
-    cells (``Rows.of_cells``, as ``loopzoo.tasks`` reads CSV files).
-    """
+    if isinstance(data, pd.DataFrame):
+        return Table(path=Path(source), frame=data.reset_index(drop=True), lines=None,
+                     file={}), False
+    try:
+        array = np.asarray(data, dtype=np.float64)
+    except (TypeError, ValueError):
+        raise PredictionError(f"{source}: expected a DataFrame with columns "
+                              f"{', '.join(map(repr, columns))} or an array of them, got "
+                              f"{type(data).__name__}") from None
+    if array.ndim != 2 or array.shape[1] != len(columns):
+        raise PredictionError(f"{source}: an array must have shape (rows, {len(columns)}) for "
+                              f"columns {', '.join(map(repr, columns))}; got {array.shape}")
+    frame = pd.DataFrame(array, columns=list(columns))
+    return Table(path=Path(source), frame=frame, lines=None, file={}), True
 
-    def __init__(self, source: str, columns: Mapping[str, list[Any]], places: list[str],
-                 ordered: bool = False) -> None:
-        self.source = source
-        self.columns = dict(columns)
-        self.places = places
-        self.ordered = ordered  # rows already in time order (an array has no time column)
 
-    @classmethod
-    def of_frame(cls, frame: Any, source: str = "data") -> Rows:
-        columns = {str(name): frame[name].tolist() for name in frame.columns}
-        return cls(source, columns, [f"row {index}" for index in frame.index])
+def _require(table: Table, name: str, role: str, expected: str) -> None:
+    """Column ``name`` must exist; the error says what the artifact expects and what is there."""
+    if name not in table.header:
+        raise PredictionError(
+            f"{table.path}: column {name!r} ({role}) is missing; the artifact expects "
+            f"{expected}; the data have columns {', '.join(map(repr, table.header)) or 'none'}")
 
-    @classmethod
-    def of_cells(cls, source: str, header: tuple[str, ...], rows: tuple[tuple[str, ...], ...],
-                 lines: tuple[int, ...]) -> Rows:
-        columns = {name: [row[i].strip() for row in rows] for i, name in enumerate(header)}
-        return cls(source, columns, [f"line {line}" for line in lines])
 
-    def __len__(self) -> int:
-        return len(self.places)
-
-    def require(self, names: tuple[str, ...], role: str, expected: str) -> None:
-        """Every column of ``names`` must exist; the error lists what the artifact expects."""
-        missing = [name for name in names if name not in self.columns]
-        if missing:
-            raise PredictionError(
-                f"{self.source}: column {missing[0]!r} ({role}) is missing; the artifact "
-                f"expects {expected}; the data have columns "
-                f"{', '.join(map(repr, self.columns)) or 'none'}")
-
-    def numbers(self, name: str, rows: np.ndarray | None = None) -> np.ndarray:
-        """A column as finite float64; a missing or non-numeric cell names its place."""
-        cells = self.columns[name]
-        values = np.empty(len(cells), dtype=np.float64)
-        for i, cell in enumerate(cells):
-            try:
-                values[i] = float(cell)
-            except (TypeError, ValueError):
-                values[i] = math.nan
-            if not math.isfinite(values[i]):
-                raise PredictionError(f"{self.source}: {self.places[i]}, column {name!r}: "
-                                      f"{cell!r} is not a finite number")
-        return values if rows is None else values[rows]
-
-    def texts(self, name: str) -> list[str]:
-        """A column as stripped text; a missing cell names its place."""
-        cells = []
-        for i, cell in enumerate(self.columns[name]):
-            text = "" if cell is None or (isinstance(cell, float) and math.isnan(cell)) else str(
-                cell).strip()
-            if not text:
-                raise PredictionError(f"{self.source}: {self.places[i]}, column {name!r}: "
-                                      "missing value")
-            cells.append(text)
-        return cells
-
-    def time_order(self, name: str, rows: list[int] | None = None) -> list[int]:
-        """Row indices sorted by column ``name`` (numbers if every cell is one, else text, as the
-        tasks order a time column); repeated times are an error."""
-        cells = self.columns[name]
-        rows = list(range(len(cells))) if rows is None else rows
-        texts = self.texts(name)
-        try:
-            keys: list[Any] = [float(texts[r]) for r in rows]
-        except ValueError:
-            keys = [texts[r] for r in rows]
-        order = sorted(range(len(rows)), key=keys.__getitem__)
-        for before, after in zip(order, order[1:], strict=False):
-            if keys[before] == keys[after]:
-                raise PredictionError(
-                    f"{self.source}: {self.places[rows[before]]} and {self.places[rows[after]]} "
-                    f"have the same {name!r} value {texts[rows[after]]!r}; times must be unique")
-        return [rows[i] for i in order]
+def _checked(read: Any, *args: Any) -> Any:
+    """A ``Table`` read whose ValueError (naming row and column) becomes a PredictionError."""
+    try:
+        return read(*args)
+    except PredictionError:
+        raise
+    except ValueError as error:
+        raise PredictionError(str(error)) from None
 
 
 class Predictor:
@@ -147,7 +109,7 @@ class Predictor:
     def predict(self, data: Any, source: str = "data") -> Any:
         """Predictions for raw ``data``; see the module docstring for the kinds.
 
-        series: a DataFrame (or ``Rows``) with the artifact's columns (and time column, if any),
+        series: a DataFrame (or a ``Table``) with the artifact's columns (and time column, if any),
         or an (L, C) array of the columns in artifact order -> a DataFrame with one row per
         forecast origin, target and horizon: ``origin_row`` (0-based, in time order),
         ``origin_time`` and ``time`` (the forecast step's time where that row is in the data) if
@@ -158,7 +120,7 @@ class Predictor:
         ``next_symbol`` (empty at the end), ``bits`` (-log2 of the probability given to the next
         symbol; NaN at the end), ``predicted`` (the most likely next symbol) and ``probability``.
 
-        sequence-classes: a DataFrame (or ``Rows``) with the feature columns and the sequence
+        sequence-classes: a DataFrame (or a ``Table``) with the feature columns and the sequence
         column -> one row per sequence: ``sequence``, ``label`` (predicted class) and
         ``p_<class>`` for each class.
 
@@ -169,34 +131,40 @@ class Predictor:
             raise PredictionError(self.refusal)
         reading = self.reading
         if isinstance(reading, SeriesReading):
-            return self._forecast(reading, self._rows(data, source, reading.columns))
+            return self._forecast(reading, *_table(data, source, reading.columns))
         if isinstance(reading, NextSymbolReading):
             return self._next_symbols(reading, data, source)
         if isinstance(reading, SequenceClassReading):
-            return self._classify(reading, self._rows(data, source, reading.features))
+            return self._classify(reading, _table(data, source, reading.features)[0])
         return self._arrays(reading, data)
 
     # -- series ---------------------------------------------------------------------------------
 
-    def series_values(self, rows: Rows) -> tuple[np.ndarray, list[int]]:
-        """(L, C) raw values of the artifact's columns in time order, and the row order."""
+    def series_values(self, table: Table, ordered: bool = False) -> tuple[np.ndarray, Any]:
+        """(L, C) raw values of the artifact's columns in time order (sorted by the time column
+        unless ``ordered``), and the ordered rows' time labels (None without a time column)."""
         reading = self.reading
         assert isinstance(reading, SeriesReading)
-        time = None if rows.ordered else reading.time
+        time = None if ordered else reading.time
         expected = (f"columns {', '.join(map(repr, reading.columns))}"
                     + (f" and time column {time!r}" if time else ""))
         for name in reading.columns + ((time,) if time else ()):
             role = "time" if name == time else (
                 "target" if name in reading.targets else "input")
-            rows.require((name,), role, expected)
-        order = rows.time_order(time) if time else list(range(len(rows)))
-        if len(rows) < reading.rows_needed:
+            _require(table, name, role, expected)
+        rows, labels = np.arange(len(table)), None
+        if time:
+            times = _checked(table.times, "time", time)
+            rows = _checked(table.order, times, rows)[0]
+            labels = [times.label(r) for r in rows]
+        if len(table) < reading.rows_needed:
             extra = " (plus 1 before it for its differences)" if reading.differences else ""
             raise PredictionError(
-                f"{rows.source}: {len(rows)} rows are too few; the artifact reads windows of "
+                f"{table.path}: {len(table)} rows are too few; the artifact reads windows of "
                 f"{reading.window} rows{extra}, so it needs at least {reading.rows_needed}")
-        values = np.stack([rows.numbers(name, np.array(order)) for name in reading.columns], 1)
-        return values, order
+        values = np.stack([_checked(table.numbers, "columns", name)[rows]
+                           for name in reading.columns], axis=1)
+        return values, labels
 
     def forecasts(self, values: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """(L, C) raw rows in time order -> (N, channels) data-unit forecasts and their (N,)
@@ -207,14 +175,12 @@ class Predictor:
         last = self.outputs(x)[:, -1]
         return reading.forecasts(last, values, origins), origins
 
-    def _forecast(self, reading: SeriesReading, rows: Rows) -> Any:
+    def _forecast(self, reading: SeriesReading, table: Table, ordered: bool) -> Any:
         import pandas as pd
 
-        values, order = self.series_values(rows)
+        values, times = self.series_values(table, ordered)
         forecast, origins = self.forecasts(values)
         records = []
-        times = ([rows.columns[reading.time][r] for r in order]
-                 if reading.time and not rows.ordered else None)
         for channel, (target, horizon) in enumerate(
                 (t, h) for t in reading.targets for h in reading.horizons):
             column = reading.columns.index(target)
@@ -287,34 +253,38 @@ class Predictor:
 
     # -- sequence classes -----------------------------------------------------------------------
 
-    def sequences(self, rows: Rows) -> tuple[list[str], list[np.ndarray]]:
+    def sequences(self, table: Table) -> tuple[list[str], list[np.ndarray]]:
         """Sequence ids (first-appearance order) and their (L_i, F) raw feature rows in order."""
         reading = self.reading
         assert isinstance(reading, SequenceClassReading)
-        needed = reading.features + tuple(c for c in (reading.sequence, reading.time) if c)
         expected = (f"feature columns {', '.join(map(repr, reading.features))}"
                     + (f", sequence column {reading.sequence!r}" if reading.sequence else "")
                     + (f" and time column {reading.time!r}" if reading.time else ""))
-        for name in needed:
+        for name in reading.features + tuple(c for c in (reading.sequence, reading.time) if c):
             role = ("sequence id" if name == reading.sequence
                     else "time" if name == reading.time else "feature")
-            rows.require((name,), role, expected)
-        if reading.label and reading.label in rows.columns:
-            for i, label in enumerate(rows.texts(reading.label)):
+            _require(table, name, role, expected)
+        if reading.label and reading.label in table.header:
+            labels = _checked(table.texts, "label", reading.label)
+            for row, label in enumerate(labels):
                 if label not in reading.classes:
                     raise PredictionError(
-                        f"{rows.source}: {rows.places[i]}, column {reading.label!r}: class "
+                        f"{table.path}: {table.where(row)}, column {reading.label!r}: class "
                         f"{label!r} was not seen in training; the artifact knows "
                         f"{', '.join(map(repr, reading.classes))}")
-        values = np.stack([rows.numbers(name) for name in reading.features], axis=1)
+        values = np.stack([_checked(table.numbers, "features", name)
+                           for name in reading.features], axis=1)
+        ids = (_checked(table.texts, "sequence", reading.sequence) if reading.sequence
+               else ["all"] * len(table))
         groups: dict[str, list[int]] = {}
-        ids = rows.texts(reading.sequence) if reading.sequence else ["all"] * len(rows)
         for row, key in enumerate(ids):
             groups.setdefault(key, []).append(row)
+        members = {key: np.array(rows) for key, rows in groups.items()}
         if reading.time:
-            groups = {key: rows.time_order(reading.time, members)
-                      for key, members in groups.items()}
-        return list(groups), [values[members] for members in groups.values()]
+            times = _checked(table.times, "time", reading.time)
+            members = {key: _checked(table.order, times, rows)[0]
+                       for key, rows in members.items()}
+        return list(members), [values[rows] for rows in members.values()]
 
     def class_log_probabilities(self, sequences: list[np.ndarray]) -> np.ndarray:
         """(N, classes) float64 log-probabilities from raw (L_i, F) feature sequences."""
@@ -327,10 +297,10 @@ class Predictor:
         last = self.outputs(x)[np.arange(len(sequences)), lengths - 1]
         return torch.log_softmax(torch.as_tensor(last, dtype=torch.float64), -1).numpy()
 
-    def _classify(self, reading: SequenceClassReading, rows: Rows) -> Any:
+    def _classify(self, reading: SequenceClassReading, table: Table) -> Any:
         import pandas as pd
 
-        ids, sequences = self.sequences(rows)
+        ids, sequences = self.sequences(table)
         log_probs = self.class_log_probabilities(sequences)
         frame = pd.DataFrame({"sequence": ids,
                               "label": [reading.classes[i] for i in log_probs.argmax(-1)]})
@@ -367,21 +337,3 @@ class Predictor:
                 batch = torch.as_tensor(x[start : start + _BATCH], dtype=dtype)
                 parts.append(self.model(batch)[0].numpy())
         return np.concatenate(parts)
-
-    def _rows(self, data: Any, source: str, columns: tuple[str, ...]) -> Rows:
-        if isinstance(data, Rows):
-            return data
-        if hasattr(data, "columns") and hasattr(data, "index"):
-            return Rows.of_frame(data, source)
-        try:
-            array = np.asarray(data, dtype=np.float64)
-        except (TypeError, ValueError):
-            raise PredictionError(f"{source}: expected a DataFrame with columns "
-                                  f"{', '.join(map(repr, columns))} or an array of them, got "
-                                  f"{type(data).__name__}") from None
-        if array.ndim != 2 or array.shape[1] != len(columns):
-            raise PredictionError(f"{source}: an array must have shape (rows, {len(columns)}) "
-                                  f"for columns {', '.join(map(repr, columns))}; got "
-                                  f"{array.shape}")
-        return Rows(source, {name: array[:, i].tolist() for i, name in enumerate(columns)},
-                    [f"row {i}" for i in range(len(array))], ordered=True)
