@@ -1,4 +1,4 @@
-"""The ``loopzoo`` command: list, train, sweep, report, export.
+"""The ``loopzoo`` command: list, train, sweep, report, export, predict.
 
     loopzoo list
     loopzoo train model=stacked task=adding seed=1 out=runs/try
@@ -6,6 +6,7 @@
     loopzoo sweep model=lstm,gru task=copy seed=1,2,3 out=runs/copy
     loopzoo report runs/quick
     loopzoo export ...
+    loopzoo predict runs/quick/runs/<run_id>/artifact new-rows.csv --out forecasts.csv
 
 Hydra overrides (``key=value``; comma lists are swept by ``sweep``) follow the subcommand.
 Bad input exits with code 2 and a one-paragraph message, never a traceback.
@@ -27,6 +28,7 @@ commands:
   sweep key=a,b ...         a sweep (suite=NAME or comma lists), one record per run, resumable
   report DIR                report.md / .csv / .html from the records under DIR
   export ...                export a trained model (loopzoo export --help)
+  predict ARTIFACT DATA --out FILE   predictions in data units from raw data (--help)
 
 Options of a run: see the config groups under loopzoo/conf (model, task, trainer, optim,
 protocol, suite, hydra/launcher). Example: loopzoo sweep suite=quick out=runs/quick
@@ -106,6 +108,7 @@ SUBCOMMANDS: dict[str, Callable[[list[str]], int]] = {
     "sweep": _sweep,
     "report": _delegate("loopzoo.report", "the report"),
     "export": _delegate("loopzoo.export", "export"),
+    "predict": _delegate("loopzoo.serve.predict_cli", "predict"),
 }
 
 

@@ -103,7 +103,7 @@ def _first_name(artifact: Path) -> str:
             lambda a: _edit_description(
                 a, options={"input_size": 3, "output_size": 2, "hidden_size": 7}
             ),
-            "the model expects float32[7",
+            "with the options in model.json expects float32[7",
         ),
         (
             lambda a: (a / WEIGHTS_FILE).write_bytes((a / WEIGHTS_FILE).read_bytes()[:-9]),
@@ -131,7 +131,7 @@ def _first_name(artifact: Path) -> str:
             lambda a: _replace_tensors(
                 a, lambda t: t.update({_first_name(a): t[_first_name(a)].flatten()[:1]})
             ),
-            "the model expects",
+            "field 'tensors' expects",
         ),
         (
             lambda a: _replace_tensors(
@@ -297,3 +297,90 @@ def test_former_module_paths_still_import_the_same_objects():
     assert loopzoo.streaming.StreamRunner is loopzoo.serve.StreamRunner
     assert loopzoo.artifacts.ArtifactError is loopzoo.serve.ArtifactError
     assert loopzoo.artifacts.load is loopzoo.load is loopzoo.serve.load
+
+
+# Issue 15 item 2: a description edited to a huge size must be refused from the files' headers,
+# before any module is built, so the refusal costs neither gigabytes nor seconds.
+_PEAK_RSS_MB = (
+    "import resource, sys, loopzoo\n"
+    "from loopzoo.serve import ArtifactError\n"
+    "try:\n"
+    "    loopzoo.load(sys.argv[1])\n"
+    "except ArtifactError as error:\n"
+    "    print(error)\n"
+    "print(resource.getrusage(resource.RUSAGE_SELF).ru_maxrss // 1024)\n"
+)
+
+
+def _load_in_fresh_process(path: Path) -> tuple[str, int]:
+    """The refusal message and the peak resident memory (MB) of loading ``path`` alone."""
+    done = subprocess.run([sys.executable, "-c", _PEAK_RSS_MB, str(path)], capture_output=True,
+                          text=True, timeout=300, check=True)
+    *message, peak = done.stdout.strip().splitlines()
+    return "\n".join(message), int(peak)
+
+
+def _baseline_rss_mb() -> int:
+    done = subprocess.run([sys.executable, "-c", "import resource, loopzoo; print(resource."
+                           "getrusage(resource.RUSAGE_SELF).ru_maxrss // 1024)"],
+                          capture_output=True, text=True, timeout=300, check=True)
+    return int(done.stdout)
+
+
+def test_a_huge_hidden_size_in_model_json_is_refused_without_building_it(artifact):
+    # hidden_size 30000 would hold a 30000 x 30000 float32 matrix: 3.6 GB.
+    _edit_description(artifact, options={"input_size": 3, "output_size": 2, "hidden_size": 30000})
+    message, peak = _load_in_fresh_process(artifact)
+    assert "expects float32[30000" in message and "weights.safetensors (header)" in message
+    assert peak < _baseline_rss_mb() + 200, f"loading took {peak} MB before refusing"
+
+
+def test_a_consistent_edit_of_options_and_tensors_is_refused_by_the_weights_header(artifact):
+    description = json.loads((artifact / DESCRIPTION_FILE).read_text())
+    with torch.device("meta"):
+        huge = loopzoo.create("hidden-feedback", input_size=3, output_size=2, hidden_size=30000)
+    _edit_description(
+        artifact, options=huge.options,
+        tensors={n: {"shape": list(t.shape), "dtype": "float32"}
+                 for n, t in huge.state_dict().items()},
+    )
+    assert description["tensors"] != read_description(artifact)["tensors"]
+    message, peak = _load_in_fresh_process(artifact)
+    assert "field 'tensors' expects float32[30000" in message
+    assert peak < _baseline_rss_mb() + 200, f"loading took {peak} MB before refusing"
+
+
+def test_a_checkpoint_with_a_huge_size_is_refused_before_building(build, tmp_path):
+    model = build("hidden-feedback")
+    path = tmp_path / "model.ckpt"
+    torch.save({"state_dict": model.state_dict(),
+                "loopzoo": {"topology": "hidden-feedback",
+                            "options": {**model.options, "hidden_size": 40000}}}, path)
+    message, peak = _load_in_fresh_process(path)
+    assert "expects float32[40000" in message
+    assert peak < _baseline_rss_mb() + 200, f"loading took {peak} MB before refusing"
+
+
+@pytest.mark.parametrize(
+    "entry",
+    [[6], {"shape": "6", "dtype": "float32"}, {"shape": [6, -1], "dtype": "float32"},
+     {"shape": [6]}],
+)
+def test_a_malformed_tensors_entry_is_refused(artifact, entry):
+    description = json.loads((artifact / DESCRIPTION_FILE).read_text())
+    name = sorted(description["tensors"])[0]
+    _edit_description(artifact, tensors={**description["tensors"], name: entry})
+    with pytest.raises(ArtifactError, match=f"field 'tensors' entry '{name}'"):
+        loopzoo.load(artifact)
+
+
+def test_a_tensors_field_that_disagrees_with_the_weights_is_refused(artifact):
+    description = json.loads((artifact / DESCRIPTION_FILE).read_text())
+    tensors = description["tensors"]
+    name = sorted(tensors)[0]
+    _edit_description(artifact, tensors={**tensors, name: {**tensors[name], "dtype": "float64"}})
+    with pytest.raises(ArtifactError, match="field 'tensors' expects float64"):
+        loopzoo.load(artifact)
+    _edit_description(artifact, tensors={k: v for k, v in tensors.items() if k != name})
+    with pytest.raises(ArtifactError, match=f"unexpected \\['{name}'\\]"):
+        loopzoo.load(artifact)

@@ -93,8 +93,13 @@ def test_bad_input_is_a_clear_error(build):
         runner.push("pump-1", [0.0, 0.0])
     with pytest.raises(ValueError, match=r"shape \(1, 3\); expected \(3,\)"):
         runner.push("pump-1", [[0.0, 0.0, 0.0]])
-    with pytest.raises(ValueError, match="sample contains NaN"):
+    with pytest.raises(ValueError, match="sample for stream 'pump-1' contains NaN"):
         runner.push("pump-1", [0.0, float("nan"), 0.0])
+    # issue 15: a string sample names the stream instead of a bare torch TypeError
+    with pytest.raises(TypeError, match=r"sample for stream 'pump-1' must be 3 numbers .*'abc'"):
+        runner.push("pump-1", "abc")
+    with pytest.raises(TypeError, match=r"samples\['pump-1'\] must be 3 numbers"):
+        runner.push_many({"pump-1": "abc"})
     runner.start("pump-3")
     with pytest.raises(ValueError, match=r"samples\['pump-3'\] contains NaN"):
         runner.push_many({"pump-1": [0.0, 0.0, 0.0], "pump-3": [float("inf"), 0.0, 0.0]})

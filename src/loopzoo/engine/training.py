@@ -260,7 +260,8 @@ def _train(run: _Run, body: dict[str, Any]) -> None:
     body["metrics"] = _metrics(val, test)
     metadata = {"task": run.settings.task, "task_options": run.settings.task_options,
                 "seed": run.settings.seed, "metrics": body["metrics"]["test"]}
-    saved = loopzoo.save(model, run.run_dir / "artifact", json_safe(metadata))
+    saved = loopzoo.save(model, run.run_dir / "artifact", json_safe(metadata),
+                         preprocessing=run.task.preprocessing())
     # Relative to the output directory (DIR/runs/<run_id>/artifact), so DIR can be moved.
     body["artifact"] = Path(os.path.relpath(saved, run.run_dir.parent.parent)).as_posix()
     batched = min(run.settings.batch_size, len(run.val.x))

@@ -4,7 +4,9 @@ Writes ``DIR/step.<ext>`` (always) and ``DIR/sequence.<ext>`` and
 ``DIR/sequence-teacher-forced.<ext>`` where the topology exports them, checks each file against
 the eager module (onnxruntime for ONNX, ``torch.export.load`` for programs) and writes
 ``DIR/export.json`` describing every graph: tensor names, dynamic dimensions, the largest error
-seen, or why a graph was not written.
+seen, or why a graph was not written, and, for an artifact that describes its data,
+``data_units``: its exact scalings, encodings and state convention, so that a runtime serves the
+graphs in data units (the graphs themselves read and write model units).
 """
 
 from __future__ import annotations
@@ -22,6 +24,7 @@ from loopzoo.export.graphs import graph_spec, graphs_for
 from loopzoo.export.parity import CHECK_BATCH_SIZES, CHECK_LENGTHS, max_error, runner_for
 from loopzoo.export.writers import FORMATS, SUFFIXES, export_bytes
 from loopzoo.serve.artifacts import ArtifactError, load
+from loopzoo.serve.preprocessing import serving_recipe
 
 __all__ = ["main", "MANIFEST_FILE"]
 
@@ -89,6 +92,10 @@ def main(argv: list[str] | None = None) -> int:
         "graphs": {},
         "not_exported": {},
     }
+    predictor = getattr(model, "predictor", None)
+    recipe = serving_recipe(predictor.preprocessing) if predictor is not None else None
+    if recipe is not None:
+        manifest["data_units"] = recipe
     status = 0
     for graph in wanted:
         path = args.out / f"{graph}{SUFFIXES[args.format]}"

@@ -5,6 +5,8 @@ stack or the report.
 """
 
 from loopzoo.serve.artifacts import ArtifactError, load, read_description, save
+from loopzoo.serve.predictor import PredictionError, Predictor
 from loopzoo.serve.streaming import StreamRunner
 
-__all__ = ["ArtifactError", "StreamRunner", "load", "read_description", "save"]
+__all__ = ["ArtifactError", "PredictionError", "Predictor", "StreamRunner", "load",
+           "read_description", "save"]

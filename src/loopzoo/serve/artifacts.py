@@ -5,11 +5,15 @@ An artifact is a directory::
     artifact/
       weights.safetensors   every tensor of ``model.state_dict()`` (safetensors: no code, no pickle)
       model.json            format tag and version, topology name, constructor options,
-                            loopzoo version, SHA-256 of the weights file, optional metadata
+                            loopzoo version, tensor names / shapes / dtypes, SHA-256 of the
+                            weights file, optional metadata, optional preprocessing (what lies
+                            between raw data and the model: ``loopzoo.serve.preprocessing``)
 
-``load`` rebuilds the module with ``loopzoo.create(topology, **options)`` and checks every tensor
-against it; it never unpickles anything from an artifact. It also reads a torch / Lightning
-checkpoint file, through ``torch.load(weights_only=True)`` only (see ``load``).
+``load`` checks the checksum, the tensor shapes in the weights file's header and the shapes the
+topology would build (on the meta device: no memory) against each other BEFORE building the
+module, so a damaged or edited artifact is refused fast; it never unpickles anything from an
+artifact. It also reads a torch / Lightning checkpoint file, through
+``torch.load(weights_only=True)`` only (see ``load``).
 """
 
 from __future__ import annotations
@@ -28,6 +32,8 @@ from safetensors.torch import load as safetensors_load
 from safetensors.torch import save as safetensors_save
 
 from loopzoo import _io
+from loopzoo.serve.predictor import Predictor
+from loopzoo.serve.preprocessing import parse as parse_preprocessing
 from loopzoo.topologies import TOPOLOGIES, create
 
 __all__ = [
@@ -42,7 +48,8 @@ __all__ = [
 ]
 
 ARTIFACT_FORMAT = "loopzoo.artifact"
-ARTIFACT_VERSION = 1
+# Version 2 adds the optional "preprocessing" field; version 1 artifacts still load.
+ARTIFACT_VERSION = 2
 WEIGHTS_FILE = "weights.safetensors"
 DESCRIPTION_FILE = "model.json"
 
@@ -58,11 +65,15 @@ def save(
     model: torch.nn.Module,
     directory: str | os.PathLike[str],
     metadata: Mapping[str, Any] | None = None,
+    *,
+    preprocessing: Mapping[str, Any] | None = None,
 ) -> Path:
     """Write ``model`` as an artifact directory and return its path.
 
     ``metadata`` (task, metrics, run id, ...) must be JSON-serialisable with finite numbers; it is
-    stored as given under ``"metadata"`` in ``model.json``. Both files are written atomically,
+    stored as given under ``"metadata"`` in ``model.json``. ``preprocessing`` (a task's
+    ``task.preprocessing()``; default: the loaded model's own, if it has one) makes the artifact a
+    self-contained predictor (``loopzoo.load(DIR).predictor``). Both files are written atomically,
     weights first; ``model.json`` records the weights' SHA-256, so a save interrupted between
     the two files (or any later damage) is reported by ``load``, never loaded silently.
 
@@ -81,6 +92,12 @@ def save(
         )
     if metadata is not None and not isinstance(metadata, Mapping):
         raise TypeError(f"metadata must be a dict or None, got {type(metadata).__name__}")
+    loaded = getattr(model, "predictor", None)
+    if preprocessing is None and isinstance(loaded, Predictor) and loaded.kind != "arrays":
+        preprocessing = loaded.preprocessing
+    if preprocessing is not None:
+        preprocessing = _json_checked("preprocessing", dict(preprocessing))
+        parse_preprocessing(preprocessing, model.input_size, model.output_size)
     target = Path(directory)
     if target.exists() and not target.is_dir():
         raise ValueError(f"artifact directory {str(target)!r} is an existing file")
@@ -97,6 +114,8 @@ def save(
         },
         "metadata": _json_checked("metadata", dict(metadata or {})),
     }
+    if preprocessing is not None:
+        description["preprocessing"] = preprocessing
     weights = safetensors_save(tensors)
     description["weights_sha256"] = hashlib.sha256(weights).hexdigest()
     _io.atomic_write_bytes(target / WEIGHTS_FILE, weights)
@@ -139,11 +158,28 @@ def read_description(directory: str | os.PathLike[str]) -> dict[str, Any]:
             raise ArtifactError(
                 f"{path}: field {field!r} is {description.get(field)!r}; expected a {kind.__name__}"
             )
+    for name, entry in description["tensors"].items():
+        shape = entry.get("shape") if isinstance(entry, dict) else None
+        if (not isinstance(shape, list) or not all(type(n) is int and n >= 0 for n in shape)
+                or not isinstance(entry.get("dtype"), str)):
+            raise ArtifactError(
+                f"{path}: field 'tensors' entry {name!r} is {entry!r}; expected "
+                '{"shape": [non-negative integers], "dtype": "float32" or another dtype name}'
+            )
+    if "preprocessing" in description and not isinstance(description["preprocessing"], dict):
+        raise ArtifactError(f"{path}: field 'preprocessing' is {description['preprocessing']!r}; "
+                            "expected an object")
     return description
 
 
 def load(path: str | os.PathLike[str]) -> torch.nn.Module:
     """Rebuild the module saved at ``path`` in eval mode, after checking every file and tensor.
+
+    The module gets a ``predictor`` attribute (``loopzoo.serve.Predictor``): raw data in,
+    predictions in data units out, from the artifact's ``preprocessing`` (plain arrays for an
+    artifact or checkpoint without one). Everything is checked before the module is built: the
+    weights' SHA-256, the tensor names, shapes and dtypes of the weights file's header against
+    ``model.json``'s ``tensors`` and against the shapes the topology and options give.
 
     ``path`` is an artifact directory written by ``save``, or a torch checkpoint file (a Lightning
     ``.ckpt`` or ``torch.save`` file) read with ``torch.load(weights_only=True)``, which refuses
@@ -157,6 +193,7 @@ def load(path: str | os.PathLike[str]) -> torch.nn.Module:
 
         model = loopzoo.load("runs/pump/artifact")
         y, state = model(x)
+        forecasts = model.predictor.predict(new_rows)   # a DataFrame, in data units
     """
     source = Path(path)
     if source.is_dir():
@@ -170,7 +207,7 @@ def load(path: str | os.PathLike[str]) -> torch.nn.Module:
 
 def _load_artifact(directory: Path) -> torch.nn.Module:
     description = read_description(directory)
-    model = _build(description["topology"], description["options"], directory / DESCRIPTION_FILE)
+    source = directory / DESCRIPTION_FILE
     weights_path = directory / WEIGHTS_FILE
     if not weights_path.is_file():
         raise ArtifactError(f"artifact {str(directory)!r} has no {WEIGHTS_FILE}")
@@ -180,12 +217,103 @@ def _load_artifact(directory: Path) -> torch.nn.Module:
             f"{weights_path}: SHA-256 does not match 'weights_sha256' in {DESCRIPTION_FILE}; "
             "the file is corrupted, truncated or from another artifact"
         )
+    stored = _header_shapes(weights, weights_path)
+    described = {name: (entry["dtype"], list(entry["shape"]))
+                 for name, entry in description["tensors"].items()}
+    _compare(stored, described, f"{weights_path} (header)", f"{source} field 'tensors'")
+    options = description["options"]
+    shell = _meta_model(description["topology"], options, source)
+    _compare(stored, _shapes(shell), f"{weights_path} (header)",
+             f"topology {description['topology']!r} with the options in {DESCRIPTION_FILE}")
+    preprocessing = description.get("preprocessing")
+    if preprocessing is not None:
+        try:
+            parse_preprocessing(preprocessing, shell.input_size, shell.output_size)
+        except ValueError as error:
+            raise ArtifactError(f"{source}: {error}") from None
+    model = _build(description["topology"], options, source)
     try:
         tensors = safetensors_load(weights)
     except (SafetensorError, ValueError) as error:
         raise ArtifactError(f"{weights_path}: not a valid safetensors file ({error})") from None
     _fill(model, tensors, weights_path)
+    refusal = None if preprocessing is not None else _undescribed(description, directory)
+    model.predictor = Predictor(model, preprocessing, refusal=refusal)
     return model
+
+
+def _undescribed(description: dict[str, Any], directory: Path) -> str | None:
+    """Why the model must not be served, when its metadata names a task that scales, windows or
+    encodes data (it has its own ``preprocessing``) but the artifact does not describe it (an
+    artifact from before version 2, or saved without ``preprocessing``); else None."""
+    from loopzoo.tasks import TASKS, Task
+
+    name = description["metadata"].get("task")
+    try:
+        task = TASKS.get(name)
+    except (TypeError, ValueError):
+        return None
+    if task.preprocessing is Task.preprocessing:
+        return None
+    options = description["metadata"].get("task_options", {})
+    return (
+        f"artifact {str(directory)!r} was trained on task {name!r}, which scales, windows or "
+        "encodes its data, but its model.json does not describe that ('preprocessing' is "
+        "missing: written before artifacts carried it), so predictions or a stream would "
+        "silently differ from training. Re-save it with the task's description: "
+        f"loopzoo.save(model, DIR, metadata, preprocessing=loopzoo.tasks.create({name!r}, "
+        f"**{options!r}).preprocessing())"
+    )
+
+
+def _header_shapes(weights: bytes, path: Path) -> dict[str, tuple[str, list[int]]]:
+    """Tensor name -> (dtype, shape) from a safetensors file's JSON header, reading no tensor."""
+    try:
+        length = int.from_bytes(weights[:8], "little")
+        if len(weights) < 8 or length > len(weights) - 8:
+            raise ValueError("the header length exceeds the file")
+        header = json.loads(weights[8 : 8 + length].decode("utf-8"))
+        if not isinstance(header, dict):
+            raise ValueError("the header is not a JSON object")
+        shapes = {}
+        for name, entry in header.items():
+            if name == "__metadata__":
+                continue
+            shapes[name] = (_SAFETENSORS_DTYPES.get(entry["dtype"], entry["dtype"]),
+                            [int(n) for n in entry["shape"]])
+    except (ValueError, KeyError, TypeError, UnicodeDecodeError) as error:
+        raise ArtifactError(f"{path}: not a valid safetensors file ({error})") from None
+    return shapes
+
+
+# safetensors header dtype codes -> torch dtype names (as model.json records them)
+_SAFETENSORS_DTYPES = {"F64": "float64", "F32": "float32", "F16": "float16", "BF16": "bfloat16",
+                       "I64": "int64", "I32": "int32", "I16": "int16", "I8": "int8",
+                       "U8": "uint8", "BOOL": "bool"}
+
+
+def _meta_model(topology: str, options: dict[str, Any], source: Path) -> torch.nn.Module:
+    """``create(topology, **options)`` on the meta device: shapes only, no memory, no init."""
+    with torch.device("meta"):
+        return _build(topology, options, source)
+
+
+def _shapes(model: torch.nn.Module) -> dict[str, tuple[str, list[int]]]:
+    return {name: (_dtype_name(t.dtype), list(t.shape)) for name, t in model.state_dict().items()}
+
+
+def _compare(found: Mapping[str, tuple[str, list[int]]],
+             expected: Mapping[str, tuple[str, list[int]]], found_in: str,
+             expected_by: str) -> None:
+    missing = sorted(set(expected) - set(found))
+    extra = sorted(set(found) - set(expected))
+    if missing or extra:
+        raise ArtifactError(f"{found_in}: tensors do not match {expected_by}; missing "
+                            f"{missing or 'none'}, unexpected {extra or 'none'}")
+    for name, (dtype, shape) in expected.items():
+        if found[name] != (dtype, shape):
+            raise ArtifactError(f"{found_in}: tensor {name!r} is {found[name][0]}{found[name][1]}; "
+                                f"{expected_by} expects {dtype}{shape}")
 
 
 def _load_checkpoint(path: Path) -> torch.nn.Module:
@@ -211,9 +339,14 @@ def _load_checkpoint(path: Path) -> torch.nn.Module:
     options = spec.get("options")
     if not isinstance(options, dict):
         raise ArtifactError(f"{path}: field 'options' is {options!r}; expected a dict")
+    expected = _shapes(_meta_model(spec["topology"], options, path))
+    tensors = _strip_common_prefix(checkpoint["state_dict"], set(expected))
+    found = {name: (_dtype_name(t.dtype), list(t.shape)) if isinstance(t, torch.Tensor)
+             else (type(t).__name__, []) for name, t in tensors.items()}
+    _compare(found, expected, str(path), f"topology {spec['topology']!r} with its options")
     model = _build(spec["topology"], options, path)
-    tensors = _strip_common_prefix(checkpoint["state_dict"], set(model.state_dict()))
     _fill(model, tensors, path)
+    model.predictor = Predictor(model)
     return model
 
 

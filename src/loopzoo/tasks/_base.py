@@ -215,6 +215,13 @@ class Task(ABC):
         """Task-specific data facts for ``describe``."""
         return {}
 
+    def preprocessing(self) -> dict[str, Any]:
+        """What lies between raw data and the model, as plain JSON data for the artifact
+        (``loopzoo.serve.preprocessing`` reads it). Here: inputs as given, outputs as computed
+        (class probabilities for classification); tasks that scale or encode data override it."""
+        return {"kind": "arrays",
+                "outputs": "classes" if self.kind == "classification" else "values"}
+
     @abstractmethod
     def _make_splits(self) -> dict[str, Split]:
         """Build all three splits."""

@@ -296,6 +296,18 @@ class SeriesTask(RegressionTask):
             facts.update(first_time=self.data.times[start], last_time=self.data.times[end - 1])
         return facts
 
+    def preprocessing(self) -> dict[str, Any]:
+        """Columns, scalings, differencing, window and horizons: everything a forecast from raw
+        rows needs (each window is read from the model's zero state)."""
+        return {"kind": "series", "columns": list(self.data.columns),
+                "targets": [self.data.columns[c] for c in self.data.targets],
+                "time": getattr(self.options, "time", None), "window": self.options.window,
+                "horizons": list(self.horizons), "differences": self.options.differences,
+                "input_scaling": {"mean": list(self.input_scaler.mean),
+                                  "std": list(self.input_scaler.std)},
+                "output_scaling": {"mean": list(self.scaler.mean), "std": list(self.scaler.std)},
+                "channels": list(self.channel_names)}
+
     def _facts(self) -> dict[str, Any]:
         return {"source": self.data.source, "rows": len(self.data.values),
                 "columns": list(self.data.columns),

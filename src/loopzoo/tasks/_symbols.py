@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from abc import abstractmethod
 from collections.abc import Sequence
-from typing import ClassVar
+from typing import Any, ClassVar
 
 import numpy as np
 
@@ -49,6 +49,10 @@ class NextSymbolTask(ClassificationTask):
     @property
     def output_size(self) -> int:  # type: ignore[override]
         return len(self.alphabet)
+
+    def preprocessing(self) -> dict[str, Any]:
+        """The alphabet (one class per symbol); each string is read whole from the zero state."""
+        return {"kind": "next-symbol", "alphabet": list(self.alphabet), "chunk": None}
 
     @abstractmethod
     def _symbol_strings(self) -> dict[str, tuple[list[np.ndarray], np.ndarray]]:

@@ -73,6 +73,10 @@ class CharacterTask(NextSymbolTask):
                              np.array([firsts, lasts], dtype=np.int64).T)
         return strings
 
+    def preprocessing(self) -> dict[str, Any]:
+        """The alphabet; the text is read in chunks of ``length`` characters from the zero state."""
+        return {**super().preprocessing(), "chunk": self.options.length}
+
     def _facts(self) -> dict[str, Any]:
         return {"source": self.source, "characters": len(self.text),
                 "alphabet_size": len(self.alphabet),

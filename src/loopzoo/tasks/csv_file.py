@@ -225,6 +225,16 @@ class CsvClassTask(SequenceClassTask):
                                        np.stack([parts[name], parts[name]], axis=1))
                 for name in SPLITS}
 
+    def preprocessing(self) -> dict[str, Any]:
+        """Feature columns and their scaling, the sequence and time columns, the class names."""
+        self.split("train")  # fits the scaler
+        opts = self.options
+        return {"kind": "sequence-classes", "features": list(self.features),
+                "sequence": opts.sequence, "time": opts.time, "label": opts.label,
+                "classes": list(self.class_names),
+                "input_scaling": {"mean": list(self.input_scaler.mean),
+                                  "std": list(self.input_scaler.std)}}
+
     def _facts(self) -> dict[str, Any]:
         lengths = [len(s) for s in self._sequences]
         self.split("train")  # fits the scaler

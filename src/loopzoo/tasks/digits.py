@@ -64,6 +64,14 @@ class DigitsTask(SequenceClassTask):
                                        np.stack([parts[name], parts[name]], axis=1))
                 for name in SPLITS}
 
+    def preprocessing(self) -> dict[str, Any]:
+        """Pixels (0-16) divided by 16; a table of pixel columns is one image, row by row."""
+        features = ([f"pixel_{i}" for i in range(1, 9)] if self.options.read == "rows"
+                    else ["pixel"])
+        return {"kind": "sequence-classes", "features": features, "sequence": None,
+                "time": None, "label": None, "classes": [str(c) for c in range(10)],
+                "input_scaling": {"mean": [0.0] * len(features), "std": [16.0] * len(features)}}
+
     def _facts(self) -> dict[str, Any]:
         return {"source": "sklearn.datasets.load_digits", "images": 1797,
                 "scaling": "pixel / 16 (fixed range 0-16)"}
