@@ -318,8 +318,14 @@ def _power(n: int, effect: float, alpha: float, one_sample: bool) -> float:
     df = n - 1 if one_sample else 2 * n - 2
     shift = effect * math.sqrt(n if one_sample else n / 2.0)
     critical = _t_ppf(1.0 - alpha / 2.0, df)
-    upper = 1.0 - float(_special.nctdtr(df, shift, critical))
-    return upper + float(_special.nctdtr(df, shift, -critical))
+    return 1.0 - _nct_cdf(critical, df, shift) + _nct_cdf(-critical, df, shift)
+
+
+def _nct_cdf(x: float, df: float, shift: float) -> float:
+    """Noncentral-t CDF; where scipy's nctdtr gives NaN (noncentrality beyond about 35, where the
+    distribution is nearly normal) the normal approximation Φ(x - shift) stands in."""
+    value = float(_special.nctdtr(df, shift, x))
+    return value if math.isfinite(value) else float(_special.ndtr(x - shift))
 
 
 def seeds_needed(
