@@ -131,7 +131,7 @@ def _data_versions(label: str, runs: list[Run]) -> dict[str, tuple[list[Run], li
             versions[run.data_files].append(run)
     if len(versions) <= 1:
         notes = []
-        if versions and unrecorded:
+        if unrecorded and any(versions):  # a task that reads no user file has nothing to say
             notes.append(
                 f"{label}: {len(unrecorded)} record(s) do not record the content hash of the data "
                 "they read (not recorded); pooled with the rest"
