@@ -4,7 +4,7 @@ import math
 
 import pytest
 
-from loopzoo.report.pareto import pareto_front
+from loopzoo.report.ranking import pareto_front
 from loopzoo.report.reach import BEYOND, reach_lag, relative_norms
 
 

@@ -208,7 +208,7 @@ def test_tost_refuses_a_non_positive_margin():
 @pytest.mark.parametrize(
     ("difference", "std_a", "std_b", "alpha"),
     [(1.0, 1.0, 1.0, 0.05), (0.3, 0.5, 0.7, 0.05), (0.05, 0.2, 0.1, 0.01), (2.0, 1.5, 0.2, 0.05),
-     (-0.8, 0.4, 0.9, 0.1)],
+     (-0.8, 0.4, 0.9, 0.1), (0.033, 0.06, 0.06, 0.05)],
 )
 def test_seeds_needed_matches_statsmodels_power(difference, std_a, std_b, alpha):
     # Source: statsmodels.stats.power.TTestIndPower().solve_power (two-sample t-test, equal

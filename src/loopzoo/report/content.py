@@ -10,11 +10,13 @@ from loopzoo.report.budget import budget_curves, budgets
 from loopzoo.report.document import (
     Block,
     Bullets,
-    Contents,
+    Column,
     Figure,
     Heading,
     Paragraph,
     Table,
+    contents_of,
+    table,
 )
 from loopzoo.report.figures import overall_figure, styles_for, task_figures
 from loopzoo.report.results import (
@@ -24,10 +26,10 @@ from loopzoo.report.results import (
     REACH_PHASES,
     Comparison,
     Row,
-    Summary,
     TaskSummary,
 )
 from loopzoo.report.stats import SEEDS_LIMIT
+from loopzoo.report.summary import Summary
 from loopzoo.report.verdict import shipped_row, task_verdict
 
 __all__ = ["TITLE", "report_blocks"]
@@ -108,36 +110,32 @@ def _quality_table(task: TaskSummary) -> Table:
     # When a classical row is best, also show how topologies stand against the best topology.
     baseline_best = task.best is not None and task.best.kind == "baseline"
     bound = task.bounds[0] if task.bounds else None
-    columns: list[tuple[str, bool, Callable[[Row], str]]] = [
-        ("row", False, lambda r: r.label),
-        ("kind", False, lambda r: KIND_WORDS[r.kind]),
-        ("params", True, lambda r: r.params),
-        (f"test {task.metric} ({_centre_words(task)})", True, _value),
-        ("ok", True, lambda r: str(r.counts["ok"])),
-        ("diverged", True, lambda r: str(r.counts["diverged"])),
-        ("failed", True, lambda r: str(r.counts["failed"])),
-        ("skipped", True, lambda r: str(r.counts["skipped"])),
-        ("ok without metric", True, lambda r: str(r.counts["missing"])),
-        ("rank", True, lambda r: fmt.number(r.rank) if r.rank else fmt.MISSING),
-        ("vs best", False,
-         lambda r: "bound (not ranked)" if r.kind == "bound" else _versus(r.versus_best)),
+    columns = [
+        Column("row", lambda r: r.label),
+        Column("kind", lambda r: KIND_WORDS[r.kind]),
+        Column("params", lambda r: r.params, numeric=True),
+        Column(f"test {task.metric} ({_centre_words(task)})", _value, numeric=True),
+        *(Column(title, lambda r, s=status: str(r.counts[s]), numeric=True)
+          for status, title in (("ok", "ok"), ("diverged", "diverged"), ("failed", "failed"),
+                                ("skipped", "skipped"), ("missing", "ok without metric"))),
+        Column("rank", lambda r: fmt.number(r.rank) if r.rank else fmt.MISSING, numeric=True),
+        Column("vs best",
+               lambda r: "bound (not ranked)" if r.kind == "bound" else _versus(r.versus_best)),
     ]
     if baseline_best:
-        columns.append(("vs best topology", False,
-                        lambda r: _versus(r.versus_pick) if r.kind == "model" else fmt.MISSING))
+        columns.append(Column(
+            "vs best topology",
+            lambda r: _versus(r.versus_pick) if r.kind == "model" else fmt.MISSING))
     if bound is not None:
-        columns.append((f"gap to bound {bound.label}", True, lambda r: _bound_gap(r, bound, task)))
+        columns.append(Column(f"gap to bound {bound.label}",
+                              lambda r: _bound_gap(r, bound, task), numeric=True))
     columns += [
-        ("flags", False, lambda r: "; ".join(r.flags) or fmt.MISSING),
-        ("Pareto (latency)", False, lambda r: _yes_no(r.front_latency)),
+        Column("flags", lambda r: "; ".join(r.flags) or fmt.MISSING),
+        Column("Pareto (latency)", lambda r: _yes_no(r.front_latency)),
     ]
     direction = "lower" if task.goal == "min" else "higher"
-    return Table(
-        f"Quality on {task.label}: test {task.metric} ({direction} is better)",
-        tuple(title for title, _, _ in columns),
-        tuple(tuple(cell(row) for _, _, cell in columns) for row in task.rows),
-        tuple(numeric for _, numeric, _ in columns),
-    )
+    return table(f"Quality on {task.label}: test {task.metric} ({direction} is better)", columns,
+                 task.rows)
 
 
 def _centre_words(task: TaskSummary) -> str:
@@ -157,34 +155,34 @@ def _cost_table(task: TaskSummary) -> Table | None:
     present = [v for r in rows if (v := r.cost.get(LATENCY_FIELD))]
     fastest = min(present) if present else None
 
-    def cells(row: Row) -> tuple[str, ...]:
-        values = [fmt.number(row.cost.get(field), 3) for field, _, _ in COST_FIELDS]
+    def relative(row: Row) -> str:
         latency = row.cost.get(LATENCY_FIELD)
-        relative = fmt.ratio(latency / fastest) if latency and fastest else fmt.MISSING
-        batch = str(row.batch_size) if row.batch_size else fmt.MISSING
-        return (row.label, *values, batch, relative)
+        return fmt.ratio(latency / fastest) if latency and fastest else fmt.MISSING
 
-    headers = tuple(f"{title} ({unit})" for _, title, unit in COST_FIELDS)
-    return Table(
-        f"Cost on {task.label} (medians over ok runs)",
-        ("topology", *headers, "batch size", "step latency vs fastest"),
-        tuple(cells(r) for r in rows),
-        (False,) + (True,) * (len(COST_FIELDS) + 2),
-    )
+    columns = [
+        Column("topology", lambda r: r.label),
+        *(Column(f"{title} ({unit})", lambda r, f=field: fmt.number(r.cost.get(f), 3),
+                 numeric=True) for field, title, unit in COST_FIELDS),
+        Column("batch size", lambda r: str(r.batch_size) if r.batch_size else fmt.MISSING,
+               numeric=True),
+        Column("step latency vs fastest", relative, numeric=True),
+    ]
+    return table(f"Cost on {task.label} (medians over ok runs)", columns, rows)
 
 
 def _reach_table(task: TaskSummary) -> Table | None:
     rows = [r for r in task.rows if r.kind == "model"]
     if not rows or all(v is None for r in rows for v in r.reach.values()):
         return None
-    columns = [(f"{phase}_{factor}", f"÷{factor} {title}") for phase, title in REACH_PHASES
-               for factor in REACH_FACTORS]
-    return Table(
+    columns = [
+        Column("topology", lambda r: r.label),
+        *(Column(f"÷{factor} {title}", lambda r, k=f"{phase}_{factor}": fmt.lag(r.reach.get(k)),
+                 numeric=True)
+          for phase, title in REACH_PHASES for factor in REACH_FACTORS),
+    ]
+    return table(
         f"Gradient reach on {task.label}: lag (steps) where ‖dL/dh‖ has fallen by 10x / 100x",
-        ("topology", *(title for _, title in columns)),
-        tuple((r.label, *(fmt.lag(r.reach.get(key)) for key, _ in columns)) for r in rows),
-        (False,) + (True,) * len(columns),
-    )
+        columns, rows)
 
 
 def _exposure_table(task: TaskSummary) -> Table | None:
@@ -214,18 +212,16 @@ def _budget_table(task: TaskSummary) -> Table | None:
     curves = budget_curves(task)
     if not curves:
         return None
-    shown = budgets(max(c.trials for c in curves))
-    return Table(
-        f"Tuning budget on {task.label}: expected best validation {task.metric} after n trials "
-        "(Dodge et al. 2019)",
-        ("topology", "trials", *(f"n = {n}" for n in shown)),
-        tuple(
-            (c.label, str(c.trials),
-             *(fmt.number(c.expected[n - 1]) if n <= c.trials else fmt.MISSING for n in shown))
-            for c in curves
-        ),
-        (False,) + (True,) * (len(shown) + 1),
-    )
+    columns = [
+        Column("topology", lambda c: c.label),
+        Column("trials", lambda c: str(c.trials), numeric=True),
+        *(Column(f"n = {n}",
+                 lambda c, n=n: fmt.number(c.expected[n - 1]) if n <= c.trials else fmt.MISSING,
+                 numeric=True)
+          for n in budgets(max(c.trials for c in curves))),
+    ]
+    return table(f"Tuning budget on {task.label}: expected best validation {task.metric} after n "
+                 "trials (Dodge et al. 2019)", columns, curves)
 
 
 def _task_section(task: TaskSummary, figures: list[Figure]) -> list[Block]:
@@ -256,21 +252,21 @@ def _classical_wins(summary: Summary) -> Paragraph:
     )
 
 
+OVERALL_COLUMNS = (
+    Column("topology", lambda r: r.label),
+    Column("tasks ranked", lambda r: str(r.tasks_ranked), numeric=True),
+    Column("mean rank", lambda r: fmt.number(r.mean_rank, 3), numeric=True),
+    Column("step latency vs fastest (geometric mean)", lambda r: fmt.ratio(r.relative_latency),
+           numeric=True),
+    Column("Pareto front", lambda r: _yes_no(r.on_front)),
+)
+
+
 def _overall_section(summary: Summary, figure: Figure | None) -> list[Block]:
     blocks: list[Block] = [Heading(2, "Across tasks", "across-tasks"), _classical_wins(summary)]
     if not summary.overall:
         return [*blocks, Paragraph("No topology has results.")]
-    blocks.append(Table(
-        "Topologies over all tasks",
-        ("topology", "tasks ranked", "mean rank", "step latency vs fastest (geometric mean)",
-         "Pareto front"),
-        tuple(
-            (r.label, str(r.tasks_ranked), fmt.number(r.mean_rank, 3),
-             fmt.ratio(r.relative_latency), _yes_no(r.on_front))
-            for r in summary.overall
-        ),
-        (False, True, True, True, False),
-    ))
+    blocks.append(table("Topologies over all tasks", OVERALL_COLUMNS, summary.overall))
     blocks.append(Paragraph(
         "Mean rank is taken among topologies only, per task, over the tasks where at least two "
         "topologies have results ('tasks ranked'); compare rows with equal counts. The latency "
@@ -287,17 +283,7 @@ def _overall_section(summary: Summary, figure: Figure | None) -> list[Block]:
 def report_blocks(summary: Summary) -> list[Block]:
     """The whole report as document blocks, in reading order."""
     styles = styles_for(summary)
-    entries = [("Verdicts", "verdicts")]
-    entries += [(f"Task: {task.label}", _anchor(task.label)) for task in summary.tasks]
-    entries.append(("Across tasks", "across-tasks"))
-    if summary.skipped:
-        entries.append(("Skipped files", "skipped"))
-    blocks: list[Block] = [
-        Heading(1, TITLE),
-        Contents(tuple(entries)),
-        _reading_guide(summary),
-        Heading(2, "Verdicts", "verdicts"),
-    ]
+    blocks: list[Block] = [Heading(2, "Verdicts", "verdicts")]
     for task in summary.tasks:
         blocks.append(Heading(3, task.label))
         blocks.append(Paragraph(" ".join(task_verdict(task, summary.alpha, summary.margin))))
@@ -307,4 +293,5 @@ def report_blocks(summary: Summary) -> list[Block]:
     if summary.skipped:
         blocks.append(Heading(2, "Skipped files", "skipped"))
         blocks.append(Bullets(tuple(f"{s.source}: {s.reason}" for s in summary.skipped)))
-    return blocks
+    # The contents follow from the section headings, so a new section needs no other edit.
+    return [Heading(1, TITLE), contents_of(blocks), _reading_guide(summary), *blocks]

@@ -7,8 +7,7 @@ import statistics
 from collections import defaultdict
 from collections.abc import Sequence
 
-from loopzoo.report.pareto import pareto_front
-from loopzoo.report.ranking import competition_ranks
+from loopzoo.report.ranking import competition_ranks, pareto_front
 from loopzoo.report.results import LATENCY_FIELD, OverallRow, TaskSummary
 
 __all__ = ["cross_task"]

@@ -16,9 +16,9 @@ from loopzoo.report.results import (
     REACH_PHASES,
     Comparison,
     Row,
-    Summary,
     TaskSummary,
 )
+from loopzoo.report.summary import Summary
 
 __all__ = ["CSV_COLUMNS", "render_csv"]
 

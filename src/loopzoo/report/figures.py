@@ -23,7 +23,8 @@ from loopzoo.report.budget import budget_curves
 from loopzoo.report.document import Figure
 from loopzoo.report.loading import finite_number
 from loopzoo.report.reach import relative_norms
-from loopzoo.report.results import LATENCY_FIELD, Row, Summary, TaskSummary
+from loopzoo.report.results import LATENCY_FIELD, Row, TaskSummary
+from loopzoo.report.summary import Summary
 
 __all__ = ["Style", "styles_for", "task_figures", "overall_figure"]
 

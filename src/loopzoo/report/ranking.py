@@ -5,11 +5,10 @@ from __future__ import annotations
 
 from collections.abc import Sequence
 
-from loopzoo.report.pareto import pareto_front
 from loopzoo.report.results import LATENCY_FIELD, Comparison, Row
 from loopzoo.report.stats import Difference, equivalence_p, holm, seeds_needed, welch
 
-__all__ = ["compare_family", "competition_ranks", "fronts", "pair_test"]
+__all__ = ["compare_family", "competition_ranks", "fronts", "pair_test", "pareto_front"]
 
 
 def competition_ranks(rows: Sequence[Row], goal: str) -> dict[tuple[str, str], int]:
@@ -80,6 +79,22 @@ def compare_family(
             needed = seeds_needed(difference, spread, other, alpha)
         found[key] = Comparison(verdict, result.p_value, adjusted[key], result, equivalent, needed)
     return found
+
+
+def pareto_front(points: Sequence[tuple[float, float]]) -> list[bool]:
+    """For each (cost, loss) point, whether no other point is at least as good on both and
+    strictly better on one. Example: ``pareto_front([(1, 3), (2, 1), (3, 2)]) == [True, True,
+    False]``. Negate a score that is maximised before calling.
+    """
+    flags = []
+    for i, (cost, loss) in enumerate(points):
+        dominated = any(
+            other_cost <= cost and other_loss <= loss and (other_cost < cost or other_loss < loss)
+            for j, (other_cost, other_loss) in enumerate(points)
+            if j != i
+        )
+        flags.append(not dominated)
+    return flags
 
 
 def fronts(rows: Sequence[Row], goal: str, attribute: str) -> dict[tuple[str, str], bool]:

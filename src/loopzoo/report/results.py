@@ -1,12 +1,13 @@
-"""The shapes of a comparison: rows, task summaries, the cross-task view, and the column set
-shared by the tables, the CSV and the pictures."""
+"""The shapes of a comparison: rows, task summaries, the cross-task rows, and the column set
+shared by the tables, the CSV and the pictures (the whole :class:`~loopzoo.report.summary.Summary`
+lives beside ``summarise``)."""
 
 from __future__ import annotations
 
 from collections.abc import Mapping
 from dataclasses import dataclass
 
-from loopzoo.report.loading import Run, Skipped, Tuning
+from loopzoo.report.loading import Run, Tuning
 from loopzoo.report.stats import Difference, Interval
 
 __all__ = [
@@ -18,7 +19,6 @@ __all__ = [
     "Exposure",
     "OverallRow",
     "Row",
-    "Summary",
     "TaskSummary",
 ]
 
@@ -142,15 +142,3 @@ class OverallRow:
     mean_rank: float | None
     relative_latency: float | None
     on_front: bool | None
-
-
-@dataclass(frozen=True)
-class Summary:
-    """Everything the report shows, in a fixed order."""
-
-    tasks: tuple[TaskSummary, ...]
-    overall: tuple[OverallRow, ...]
-    skipped: tuple[Skipped, ...]
-    alpha: float
-    confidence: float
-    margin: float

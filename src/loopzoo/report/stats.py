@@ -17,7 +17,7 @@ import re
 from collections.abc import Sequence
 from dataclasses import dataclass
 
-from scipy import stats as _scipy_stats
+from scipy import special as _special
 
 __all__ = [
     "POWER",
@@ -120,8 +120,18 @@ def _check(values: Sequence[float], confidence: float) -> None:
         raise ValueError(f"mean_interval needs finite values, got {list(values)!r}")
 
 
+# Student-t and noncentral-t through scipy.special's ufuncs (what scipy.stats.t / nct call, without
+# their per-call argument handling, which dominated the report's time).
+def _t_cdf(x: float, df: float) -> float:
+    return float(_special.stdtr(df, x))
+
+
+def _t_ppf(q: float, df: float) -> float:
+    return float(_special.stdtrit(df, q))
+
+
 def _quantile(confidence: float, df: float) -> float:
-    return float(_scipy_stats.t.ppf((1.0 + confidence) / 2.0, df))
+    return _t_ppf((1.0 + confidence) / 2.0, df)
 
 
 def mean_interval(values: Sequence[float], confidence: float = 0.95) -> Interval:
@@ -249,7 +259,7 @@ def welch(
         return Difference(scale, estimate, estimate, estimate, statistic, df,
                           1.0 if same else 0.0, 0.0)
     statistic = difference / error
-    p_value = min(1.0, float(2.0 * _scipy_stats.t.sf(abs(statistic), df)))
+    p_value = min(1.0, 2.0 * _t_cdf(-abs(statistic), df))
     half = _quantile(confidence, df) * error
     return Difference(scale, _back(difference, scale), _back(difference - half, scale),
                       _back(difference + half, scale), statistic, df, p_value, error)
@@ -282,8 +292,8 @@ def equivalence_p(
         bound = margin * abs(_analysis(b, scale)[0] if exact_b else math.fsum(b) / len(b))
     if error == 0.0:
         return 0.0 if abs(difference) < bound else 1.0
-    above_lower = float(_scipy_stats.t.sf((difference + bound) / error, df))
-    below_upper = float(_scipy_stats.t.cdf((difference - bound) / error, df))
+    above_lower = _t_cdf(-(difference + bound) / error, df)
+    below_upper = _t_cdf((difference - bound) / error, df)
     return max(above_lower, below_upper)
 
 
@@ -307,9 +317,15 @@ def _power(n: int, effect: float, alpha: float, one_sample: bool) -> float:
     """Power of the two-sided t-test at ``n`` seeds per row for a standardised ``effect``."""
     df = n - 1 if one_sample else 2 * n - 2
     shift = effect * math.sqrt(n if one_sample else n / 2.0)
-    critical = float(_scipy_stats.t.ppf(1.0 - alpha / 2.0, df))
-    nct = _scipy_stats.nct
-    return float(nct.sf(critical, df, shift) + nct.cdf(-critical, df, shift))
+    critical = _t_ppf(1.0 - alpha / 2.0, df)
+    return 1.0 - _nct_cdf(critical, df, shift) + _nct_cdf(-critical, df, shift)
+
+
+def _nct_cdf(x: float, df: float, shift: float) -> float:
+    """Noncentral-t CDF; where scipy's nctdtr gives NaN (noncentrality beyond about 35, where the
+    distribution is nearly normal) the normal approximation Φ(x - shift) stands in."""
+    value = float(_special.nctdtr(df, shift, x))
+    return value if math.isfinite(value) else float(_special.ndtr(x - shift))
 
 
 def seeds_needed(
@@ -333,15 +349,28 @@ def seeds_needed(
     if spread == 0.0:
         return 2
     effect = abs(difference) / spread
-    high = 2
-    while _power(high, effect, alpha, one_sample) < power:
-        if high >= SEEDS_LIMIT:
-            return None
-        high = min(2 * high, SEEDS_LIMIT)
-    low = high // 2 if high > 2 else 1  # power(low) < target (or low is below the minimum 2)
+
+    def enough(n: int) -> bool:
+        return _power(n, effect, alpha, one_sample) >= power
+
+    # Start near the normal approximation n = k (z_{1-alpha/2} + z_power)² / effect² (k = 2 for
+    # two samples) and search from there; power grows with n, so the search is exact.
+    normal = _special.ndtri
+    guess = (1 if one_sample else 2) * ((normal(1 - alpha / 2) + normal(power)) / effect) ** 2
+    if guess > SEEDS_LIMIT or not enough(SEEDS_LIMIT):
+        return None
+    n = min(SEEDS_LIMIT, max(2, math.ceil(guess) - 1))
+    if enough(n):
+        while n > 2 and enough(n - 1):
+            n -= 1
+        return n
+    low, step = n, 1  # power(low) is short of the target
+    while not enough(min(low + step, SEEDS_LIMIT)):
+        low, step = low + step, 2 * step
+    high = min(low + step, SEEDS_LIMIT)
     while high - low > 1:
         middle = (low + high) // 2
-        if _power(middle, effect, alpha, one_sample) >= power:
+        if enough(middle):
             high = middle
         else:
             low = middle

@@ -5,20 +5,32 @@ from __future__ import annotations
 
 from collections import Counter, defaultdict
 from collections.abc import Sequence
-from dataclasses import replace
+from dataclasses import dataclass, replace
 
 from loopzoo.report.cross_task import cross_task
 from loopzoo.report.labels import option_label, variant_labels
 from loopzoo.report.loading import Run, Skipped
 from loopzoo.report.ranking import compare_family, competition_ranks, fronts
-from loopzoo.report.results import Row, Summary, TaskSummary
+from loopzoo.report.results import OverallRow, Row, TaskSummary
 from loopzoo.report.rows import build_row, row_interval
 from loopzoo.report.stats import analysis_scale
 
-__all__ = ["EQUIVALENCE_MARGIN", "summarise"]
+__all__ = ["EQUIVALENCE_MARGIN", "Summary", "summarise"]
 
 EQUIVALENCE_MARGIN = 0.05  # relative margin of the equivalence test (5%: a stated convention)
 ROW_KINDS = ("model", "baseline", "bound")
+
+
+@dataclass(frozen=True)
+class Summary:
+    """Everything the report shows, in a fixed order."""
+
+    tasks: tuple[TaskSummary, ...]
+    overall: tuple[OverallRow, ...]
+    skipped: tuple[Skipped, ...]
+    alpha: float
+    confidence: float
+    margin: float
 
 
 def _primary(runs: Sequence[Run], task_label: str, gaps: list[str]) -> tuple[str | None, str]:
@@ -119,7 +131,7 @@ def _data_versions(label: str, runs: list[Run]) -> dict[str, tuple[list[Run], li
             versions[run.data_files].append(run)
     if len(versions) <= 1:
         notes = []
-        if versions and unrecorded:
+        if unrecorded and any(versions):  # a task that reads no user file has nothing to say
             notes.append(
                 f"{label}: {len(unrecorded)} record(s) do not record the content hash of the data "
                 "they read (not recorded); pooled with the rest"
