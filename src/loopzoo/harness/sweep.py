@@ -18,7 +18,7 @@ from hydra._internal.core_plugins.basic_sweeper import BasicSweeper
 from omegaconf import DictConfig, OmegaConf
 
 from loopzoo.harness import records, runids, state
-from loopzoo.harness.config import compose_job, composer, parse_overrides
+from loopzoo.harness.config import compose_job, composer, parse_overrides, plain_task_options
 from loopzoo.harness.errors import ConfigError
 
 __all__ = ["SweepPlan", "plan_sweep", "run_sweep"]
@@ -86,6 +86,7 @@ def run_sweep(overrides: list[str]) -> int:
     from loopzoo.harness.app import hydra_sweep_entry
 
     tick = time.perf_counter()
+    overrides = plain_task_options(overrides)
     plan = plan_sweep(overrides)
     records.claim_out_dir(plan.out, plan.suite)
     with state.sweep_lock(plan.out):
