@@ -12,8 +12,8 @@ from loopzoo.engine import evaluation, module
 from loopzoo.engine.training import baseline_records, train_and_evaluate
 
 TINY = [
-    "task.options.length=12", "+task.options.train_size=256", "+task.options.val_size=64",
-    "+task.options.test_size=64", "task.batch_size=32", "task.budget=400",
+    "task.options.length=12", "task.options.train_size=256", "task.options.val_size=64",
+    "task.options.test_size=64", "task.batch_size=32", "task.budget=400",
     "trainer.max_steps=40", "protocol.val_every=10", "trainer.enable_progress_bar=false",
 ]
 
