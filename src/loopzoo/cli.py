@@ -1,6 +1,7 @@
 """The ``loopzoo`` command: list, train, sweep, report, export, predict.
 
     loopzoo list
+    loopzoo options task=csv
     loopzoo train model=stacked task=adding seed=1 out=runs/try
     loopzoo sweep suite=quick out=runs/quick
     loopzoo sweep model=lstm,gru task=copy seed=1,2,3 out=runs/copy
@@ -24,14 +25,17 @@ USAGE = """usage: loopzoo <command> [key=value ...]
 
 commands:
   list                      topologies, tasks, suites and sweep launchers, one line each
+  options task=NAME | model=NAME
+                            a task's or topology's options: value, accepted values, meaning
   train key=value ...       one run (model=, task=, seed=, out=, trainer.max_steps=, optim.lr=, ...)
   sweep key=a,b ...         a sweep (suite=NAME or comma lists), one record per run, resumable
   report DIR                report.md / .csv / .html from the records under DIR
   export ...                export a trained model (loopzoo export --help)
   predict ARTIFACT DATA --out FILE   predictions in data units from raw data (--help)
 
-Options of a run: see the config groups under loopzoo/conf (model, task, trainer, optim,
-protocol, suite, hydra/launcher). Example: loopzoo sweep suite=quick out=runs/quick
+Options of a run: the config groups under loopzoo/conf (model, task, trainer, optim, protocol,
+suite, hydra/launcher); `loopzoo options task=NAME` lists a task's (set them with
+task.options.NAME=VALUE). Example: loopzoo sweep suite=quick out=runs/quick
 """
 
 
@@ -59,6 +63,26 @@ def _list(argv: list[str]) -> int:
         print(title)
         for name, line in rows:
             print(f"  {name:<18} {line}")
+    return 0
+
+
+def _options(argv: list[str]) -> int:
+    import loopzoo
+    from loopzoo._registry import unknown_choice
+    from loopzoo.harness.option_help import model_options, render, task_options
+
+    listers = {"task": (loopzoo.tasks.available, task_options),
+               "model": (loopzoo.available, model_options)}
+    if not argv:
+        return _fail("options needs task=NAME or model=NAME, e.g. loopzoo options task=csv")
+    for argument in argv:
+        group, _, name = argument.partition("=")
+        if group not in listers or not name:
+            return _fail(f"options takes task=NAME or model=NAME, got {argument!r}")
+        names, rows = listers[group]
+        if name not in names():
+            return _fail(str(unknown_choice(group, name, names())))
+        print(render(group, name, rows(name)))
     return 0
 
 
@@ -104,6 +128,7 @@ def _delegate(module: str, purpose: str) -> Callable[[list[str]], int]:
 
 SUBCOMMANDS: dict[str, Callable[[list[str]], int]] = {
     "list": _list,
+    "options": _options,
     "train": _train,
     "sweep": _sweep,
     "report": _delegate("loopzoo.report", "the report"),

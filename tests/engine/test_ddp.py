@@ -34,8 +34,8 @@ SCRIPT = textwrap.dedent(
 
     if __name__ == "__main__":
         overrides = [
-            "trainer=ddp", "task.options.length=12", "+task.options.train_size=256",
-            "+task.options.val_size=32", "+task.options.test_size=32", "task.batch_size=32",
+            "trainer=ddp", "task.options.length=12", "task.options.train_size=256",
+            "task.options.val_size=32", "task.options.test_size=32", "task.batch_size=32",
             "task.budget=400", "trainer.max_steps=40", "protocol.val_every=10",
             "protocol.lr_grid=null", "trainer.enable_progress_bar=false", *sys.argv[2:],
         ]

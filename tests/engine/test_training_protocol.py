@@ -13,8 +13,8 @@ from loopzoo.engine.training import train_and_evaluate
 from loopzoo.harness.baselines import baseline_records
 
 TINY = [
-    "task.options.length=12", "+task.options.train_size=256", "+task.options.val_size=64",
-    "+task.options.test_size=64", "task.batch_size=32", "task.budget=400",
+    "task.options.length=12", "task.options.train_size=256", "task.options.val_size=64",
+    "task.options.test_size=64", "task.batch_size=32", "task.budget=400",
     "trainer.max_steps=40", "protocol.val_every=10", "trainer.enable_progress_bar=false",
 ]
 

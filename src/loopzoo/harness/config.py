@@ -30,6 +30,7 @@ __all__ = [
     "output_kind",
     "group_options",
     "parse_overrides",
+    "plain_task_options",
     "composer",
     "compose_job",
     "finish_config",
@@ -85,6 +86,16 @@ def parse_overrides(overrides: list[str]) -> list[Override]:
         raise ConfigError(f"cannot read the overrides: {error}") from None
 
 
+def plain_task_options(overrides: list[str]) -> list[str]:
+    """``+task.options.NAME=V`` read as ``++task.options.NAME=V`` (set or add).
+
+    Every task option is declared in its ``conf/task`` file, so none needs ``+``; command lines
+    written when they did keep working, and a name the task lacks is still refused by the task
+    with the accepted ones.
+    """
+    return [f"+{o}" if o.startswith("+task.options.") else o for o in overrides]
+
+
 def _flat_keys(node: Any, prefix: str = "") -> list[str]:
     if not isinstance(node, dict):
         return []
@@ -102,10 +113,9 @@ def _unknown_key_error(key: str, valid: list[str]) -> ConfigError:
     near = difflib.get_close_matches(key, valid, n=3, cutoff=0.5)
     hint = f" Nearest valid keys: {', '.join(near)}." if near else ""
     level = f" Keys under {parent!r}: {', '.join(siblings)}." if siblings and parent else ""
-    return ConfigError(
-        f"unknown config key {key!r}.{hint}{level} (A key the shipped configs lack can be "
-        f"added with +{key}=VALUE.)"
-    )
+    tail = ("" if key.startswith("task.options.") else
+            f" (A key the shipped configs lack can be added with +{key}=VALUE.)")
+    return ConfigError(f"unknown config key {key!r}.{hint}{level}{tail}")
 
 
 @contextmanager
@@ -146,8 +156,9 @@ def compose_job(overrides: list[str], *, with_hydra: bool = False) -> DictConfig
     ``ConfigError`` naming the value and the accepted ones. With ``with_hydra`` the ``hydra``
     node is kept (sweep lists, launcher) and ``finish_config`` is not applied.
     """
+    overrides = plain_task_options(list(overrides))
     try:
-        cfg = compose("config", overrides=list(overrides), return_hydra_config=with_hydra)
+        cfg = compose("config", overrides=overrides, return_hydra_config=with_hydra)
     except (HydraException, OmegaConfBaseException) as error:
         raise _explain(error, list(overrides)) from None
     return cfg if with_hydra else finish_config(cfg, overrides)

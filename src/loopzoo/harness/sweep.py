@@ -17,7 +17,7 @@ from pathlib import Path
 from omegaconf import DictConfig, OmegaConf
 
 from loopzoo.harness import records, runids, state
-from loopzoo.harness.config import compose_job, composer, parse_overrides
+from loopzoo.harness.config import compose_job, composer, parse_overrides, plain_task_options
 from loopzoo.harness.errors import ConfigError
 from loopzoo.harness.hydra_private import run_multirun, split_jobs
 
@@ -85,6 +85,7 @@ def run_sweep(overrides: list[str]) -> int:
     from loopzoo.harness.app import hydra_sweep_entry
 
     tick = time.perf_counter()
+    overrides = plain_task_options(overrides)
     plan = plan_sweep(overrides)
     records.claim_out_dir(plan.out, plan.suite)
     with state.sweep_lock(plan.out):

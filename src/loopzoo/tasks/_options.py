@@ -122,9 +122,9 @@ def check_str_list(field: str, value: object, allow_empty: bool = False) -> tupl
 class SplitSizes:
     """Sizes of generated splits (sequences per part); tasks with generated data inherit these."""
 
-    train_size: int = 2000  # small enough that a tiny model trains in seconds
-    val_size: int = 500
-    test_size: int = 1000  # large, so test metrics carry little sampling error
+    train_size: int = 2000  # training sequences; small enough that a tiny model trains in seconds
+    val_size: int = 500  # sequences for validation (learning-rate choice, early stopping)
+    test_size: int = 1000  # test sequences; many, so test metrics carry little sampling error
 
     def __post_init__(self) -> None:
         for name in ("train_size", "val_size", "test_size"):

@@ -119,11 +119,11 @@ class CsvForecastTask(SeriesTask):
 class CsvClassOptions:
     path: str | os.PathLike[str] | None = None  # the CSV or Parquet file (required)
     label: str | None = None  # the class column (required), constant within a sequence
-    sequence: str | None = None  # the sequence id column (required); rows of one id form one
+    sequence: str | None = None  # the id column (required); rows sharing an id form a sequence
     features: tuple[str, ...] | None = None  # input columns; None: all the other columns
     time: str | None = None  # column to order rows within a sequence; None: file order
     val_fraction: float = 0.2  # share of each class's sequences, drawn with the seed
-    test_fraction: float = 0.2
+    test_fraction: float = 0.2  # share of each class's sequences held out for the test
 
     def __post_init__(self) -> None:
         _check_path(self.path)

@@ -19,7 +19,7 @@ __all__ = ["DigitsTask"]
 class DigitsOptions:
     read: str = "rows"  # "rows": 8 steps of 8 pixels; "pixels": 64 steps of 1 pixel
     val_fraction: float = 0.2  # share of each class, drawn with the seed
-    test_fraction: float = 0.2
+    test_fraction: float = 0.2  # share of each class held out for the test, drawn with the seed
 
     def __post_init__(self) -> None:
         check_choice("read", self.read, ["rows", "pixels"])
