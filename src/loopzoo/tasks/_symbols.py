@@ -50,6 +50,10 @@ class NextSymbolTask(ClassificationTask):
     def output_size(self) -> int:  # type: ignore[override]
         return len(self.alphabet)
 
+    def observed_after(self) -> tuple[int | None, ...]:
+        """The next symbol is the next step's input: observed one step later."""
+        return (1,)
+
     @abstractmethod
     def _symbol_strings(self) -> dict[str, tuple[list[np.ndarray], np.ndarray]]:
         """Per split: the id strings and their (N, 2) spans."""
