@@ -18,6 +18,8 @@ VARIANTS: dict[str, list[dict]] = {
         {"output_kind": "classes"},
         {"output_kind": "classes", "fed_back": "onehot"},
         {"nonlinearity": "relu", "fed_back": "detached"},
+        {"delay": 3},
+        {"delay": 2, "output_kind": "classes"},
     ],
     "stacked": [{"num_layers": 3, "dropout": 0.3}, {"num_layers": 1, "nonlinearity": "relu"}],
     "deep-transition": [
