@@ -37,6 +37,12 @@ from loopzoo.engine.errors import ConfigError
 from loopzoo.engine.evaluation import NonFinitePrediction, SplitScorer
 from loopzoo.engine.lightning_setup import fit_quietly
 from loopzoo.engine.module import SequenceModule
+from loopzoo.engine.observed_feedback import (
+    delay_option,
+    measured_feedback_exists,
+    observed_plan,
+    selected_group,
+)
 from loopzoo.engine.optimizers import optimizer_factory
 from loopzoo.engine.provenance import utc_now, versions
 from loopzoo.engine.schedules import TeacherForcingPlan
@@ -72,22 +78,32 @@ def _data_record(task: Any) -> dict[str, Any]:
     return {"files": task.data_files(), "facts": task.describe()}
 
 
+def _model_options(settings: RunSettings, task: Any) -> dict[str, Any]:
+    """The configured options, plus for output feedback the ``delay`` the task's observations
+    allow (``loopzoo.engine.observed_feedback``)."""
+    options = dict(settings.model_options)
+    if settings.model in loopzoo.available() and getattr(
+        loopzoo.topologies.TOPOLOGIES.get(settings.model), "feeds_back_output", False
+    ):
+        options["delay"] = delay_option(task, options)
+    return options
+
+
 def _build_model(settings: RunSettings, task: Any) -> torch.nn.Module:
     sizes = {"input_size": task.input_size, "output_size": task.output_size}
+    model_options = _model_options(settings, task)
     try:
         hidden = loopzoo.width_for_budget(
-            settings.model, params=settings.budget, **sizes, **settings.model_options
+            settings.model, params=settings.budget, **sizes, **model_options
         )
     except (ValueError, TypeError) as error:
         raise ConfigError(
             f"task.budget = {settings.budget} cannot be met by model {settings.model!r} with "
-            f"options {settings.model_options}: {error}"
+            f"options {model_options}: {error}"
         ) from error
     L.seed_everything(settings.seed, verbose=False)
     try:
-        return loopzoo.create(
-            settings.model, hidden_size=hidden, **sizes, **settings.model_options
-        )
+        return loopzoo.create(settings.model, hidden_size=hidden, **sizes, **model_options)
     except (ValueError, TypeError) as error:
         raise ConfigError(f"model {settings.model!r}: {error}") from error
 
@@ -140,7 +156,9 @@ class _Run:
         self.feeds_back = bool(getattr(model, "feeds_back_output", False))
         self.train, self.val, self.test = (task.split(s) for s in ("train", "val", "test"))
         _check_protocol(settings, len(self.train.x))
-        self.select_group = settings.feedback_select if self.feeds_back else "plain"
+        self.measured = self.feeds_back and measured_feedback_exists(task)
+        self.select_group = (selected_group(settings.feedback_select, task) if self.feeds_back
+                             else "plain")
         try:
             optimizer_factory(settings.optimizer, lr=settings.lr,
                               weight_decay=settings.weight_decay, extra=settings.optimizer_extra)
@@ -156,7 +174,7 @@ class _Run:
                                  extra=settings.optimizer_extra)
         return SequenceModule(
             copy.deepcopy(self.model), self.task,
-            SplitScorer(self.task, self.val, feeds_back=self.feeds_back),
+            SplitScorer(self.task, self.val, feeds_back=self.feeds_back, measured=self.measured),
             batch_size=settings.batch_size, optimizer=make,
             grad_clip_norm=settings.grad_clip_norm, plan=self.plan,
             tbptt_chunk=settings.tbptt_chunk, val_every=settings.val_every,
@@ -215,14 +233,16 @@ class _Run:
         return module, {"chosen": chosen, **lr_record}
 
 
-def _metrics(groups_val: dict[str, dict[str, float]],
-             groups_test: dict[str, dict[str, float]]) -> dict[str, dict[str, float]]:
-    if "plain" in groups_val:
-        return {"val": groups_val["plain"], "test": groups_test["plain"]}
-    return {
-        "val": groups_val["teacher_forced"], "val_free_running": groups_val["free_running"],
-        "test": groups_test["teacher_forced"], "test_free_running": groups_test["free_running"],
-    }
+def _metrics(groups_val: dict[str, dict[str, float]], groups_test: dict[str, dict[str, float]],
+             selected: str) -> dict[str, dict[str, float]]:
+    """``val`` / ``test``: what a deployed model scores (for output feedback the selected
+    configuration); output feedback adds every configuration it was scored in."""
+    metrics = {"val": groups_val[selected], "test": groups_test[selected]}
+    for group in groups_val:
+        if group != "plain":
+            metrics[f"val_{group}"] = groups_val[group]
+            metrics[f"test_{group}"] = groups_test[group]
+    return metrics
 
 
 def train_and_evaluate(cfg: DictConfig, run_dir: Path) -> dict[str, Any]:
@@ -244,7 +264,7 @@ def train_and_evaluate(cfg: DictConfig, run_dir: Path) -> dict[str, Any]:
     _check_trainer(settings)
     task = _build_task(settings)
     model = _build_model(settings, task)
-    plan = _feedback_plan(settings, model)
+    plan, plan_note = observed_plan(_feedback_plan(settings, model), task)
     run = _Run(settings, task, model, plan, run_dir)
     body: dict[str, Any] = {
         "kind": "model", "status": "ok", "reason": None, "diverged_at_step": None,
@@ -260,7 +280,9 @@ def train_and_evaluate(cfg: DictConfig, run_dir: Path) -> dict[str, Any]:
     }
     if run.feeds_back:
         body["feedback"] = {**plan.describe(), "fed_back": model.options.get("fed_back"),
-                            "selected_on": run.select_group}
+                            "selected_on": run.select_group,
+                            "observable": task.observability(),
+                            "delay": model.options.get("delay"), "note": plan_note}
     run_dir.mkdir(parents=True, exist_ok=True)
     try:
         _train(run, body)
@@ -306,12 +328,14 @@ def _train(run: _Run, body: dict[str, Any]) -> None:
     body["lr"]["best_step"] = state.best_step
     body["lr"]["early_stopped"] = state.early_stopped
     try:
-        val = SplitScorer(run.task, run.val, feeds_back=run.feeds_back).score(model)
-        test = SplitScorer(run.task, run.test, feeds_back=run.feeds_back).score(model)
+        val = SplitScorer(run.task, run.val, feeds_back=run.feeds_back,
+                          measured=run.measured).score(model)
+        test = SplitScorer(run.task, run.test, feeds_back=run.feeds_back,
+                           measured=run.measured).score(model)
     except NonFinitePrediction as error:
         body.update(status="diverged", reason=f"{error} (after training, best weights)")
         return
-    body["metrics"] = _metrics(val, test)
+    body["metrics"] = _metrics(val, test, run.select_group)
     metadata = {"task": run.settings.task, "task_options": run.settings.task_options,
                 "seed": run.settings.seed, "metrics": body["metrics"]["test"]}
     saved = loopzoo.save(model, run.run_dir / "artifact", _finite(metadata))
