@@ -13,7 +13,7 @@ from loopzoo.topologies import TOPOLOGIES
 # Non-default options per topology (the defaults are always a case). A new topology is covered
 # with its defaults without an entry here.
 VARIANTS: dict[str, list[dict]] = {
-    "hidden-feedback": [{"nonlinearity": "relu"}],
+    "hidden-feedback": [{"nonlinearity": "relu"}, {"nonlinearity": "relu", "init": "identity"}],
     "output-feedback": [
         {"output_kind": "classes"},
         {"output_kind": "classes", "fed_back": "onehot"},
@@ -26,7 +26,8 @@ VARIANTS: dict[str, list[dict]] = {
         {"transition_depth": 3, "output_depth": 2, "shortcut": True},
         {"transition_depth": 1, "output_depth": 3},
     ],
-    "residual-skip": [{"mode": "gated", "num_layers": 2}, {"scale": 0.5, "num_layers": 2}],
+    "residual-skip": [{"num_layers": 2}, {"mode": "scaled"},
+                      {"mode": "scaled", "scale": 0.5, "num_layers": 2}],
     "lstm": [{"num_layers": 2, "dropout": 0.2}],
     "gru": [{"num_layers": 2}],
 }
