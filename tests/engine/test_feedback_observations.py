@@ -27,8 +27,8 @@ import torch
 
 import loopzoo
 from loopzoo.engine import training
-from loopzoo.harness.config import compose_job, composer
 from loopzoo.engine.observed_feedback import MEASURED
+from loopzoo.harness.config import compose_job, composer
 
 SMALL = {"train_size": 96, "val_size": 48, "test_size": 64}
 OPTIONS = {
