@@ -148,9 +148,11 @@ OPTION_VARIANTS = [
     ("output-feedback", {"output_kind": "classes"}),
     ("output-feedback", {"output_kind": "classes", "fed_back": "onehot"}),
     ("output-feedback", {"fed_back": "detached"}),
+    ("output-feedback", {"delay": [1, 3]}),
+    ("output-feedback", {"delay": 2, "output_kind": "classes"}),
     ("stacked", {"num_layers": 3}),
     ("deep-transition", {"shortcut": True, "output_depth": 2, "transition_depth": 3}),
-    ("residual-skip", {"mode": "gated", "num_layers": 2}),
+    ("residual-skip", {"mode": "scaled", "scale": 0.5, "num_layers": 2}),
     ("lstm", {"num_layers": 2}),
     ("gru", {"num_layers": 2}),
 ]

@@ -101,7 +101,9 @@ def _model_record(task: str, model: str, seed: int, spec: tuple, metric: str, go
     }
     if model == "output-feedback":
         fields["feedback"] = {"mode": "scheduled", "schedule": "inverse_sigmoid",
-                              "fed_back": "distribution"}
+                              "fed_back": "distribution", "selected_on": "measured_feedback",
+                              "observable": "next_step"}
+        fields["metrics"]["test_measured_feedback"] = {metric: value}
         fields["metrics"]["test_free_running"] = {metric: value * 1.6}
         fields["metrics"]["val_free_running"] = {metric: value * 1.5}
     return record(**fields)

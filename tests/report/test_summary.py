@@ -105,15 +105,30 @@ def test_one_seed_rows_are_untested_and_ties_prefer_more_seeds(summary, tmp_path
 def test_exposure_bias_and_ranking_on_free_running(summary, demo, tmp_path):
     pump = _task(summary, "pump-vibration")
     exposure = _row(pump, "output-feedback").exposure
-    assert exposure.settings == ("scheduled / inverse_sigmoid / distribution",)
+    assert exposure.settings == (
+        "scheduled / inverse_sigmoid / distribution, selected on measured_feedback",)
     assert exposure.gap.mean == pytest.approx(0.6 * exposure.teacher_forced.mean)
-    selected = demo.record(model="output-feedback", metrics={
-        "test": {"mse": 0.01}, "test_free_running": {"mse": 0.04}},
+    measured = demo.record(model="output-feedback", metrics={
+        "test": {"mse": 0.04}, "test_free_running": {"mse": 0.04},
+        "test_measured_feedback": {"mse": 0.01}},
         feedback={"mode": "scheduled", "schedule": "linear", "selected_on": "free_running"})
-    demo.write_records(tmp_path, [selected])
+    demo.write_records(tmp_path, [measured])
     row = summarise(load_runs(tmp_path)[0]).tasks[0].rows[0]
     assert row.values == (0.04,)
     assert row.exposure.settings == ("scheduled / linear, selected on free_running",)
+
+
+@pytest.mark.parametrize("selected_on", ["free_running", "teacher_forced"])
+def test_no_exposure_figure_where_targets_are_never_observed(demo, tmp_path, selected_on):
+    """A sequence label is never observed: no measured-feedback figure, no exposure row, and a
+    record's teacher-forced ``test`` of an older format is never what the row is ranked on."""
+    label_task = demo.record(model="output-feedback", metrics={
+        "test": {"mse": 0.001}, "test_free_running": {"mse": 0.3}},
+        feedback={"mode": "free_running", "selected_on": selected_on, "observable": "never"})
+    demo.write_records(tmp_path, [label_task])
+    row = summarise(load_runs(tmp_path)[0]).tasks[0].rows[0]
+    assert row.values == (0.3,)
+    assert row.exposure is None
 
 
 def test_reach_and_cost_medians(summary):

@@ -215,3 +215,36 @@ def test_unknown_names_and_options_are_rejected():
         loopzoo.tasks.create("adding", **SMALL).split("training")
     with pytest.raises(ValueError, match="seed"):
         loopzoo.tasks.create("adding", seed=-1)
+
+
+def test_observability_is_declared_per_target_and_true_of_the_data(task_pair):
+    """A target declared observed after d steps is revealed by the inputs up to d steps later
+    (what a series-parallel model may feed back, Narendra & Parthasarathy 1990)."""
+    task = task_pair[0]
+    delays = task.observed_after()
+    assert len(delays) == (task.output_size if task.kind == "regression" else 1)
+    assert all(d is None or (isinstance(d, int) and d >= 1) for d in delays)
+    assert task.observability() == task.describe()["observable"]
+    split = task.split("train")
+    steps = split.mask.shape[1]
+    for channel, delay in enumerate(delays):
+        if delay is None or delay >= steps:
+            continue
+        if task.kind == "classification":
+            # The class at t is a function of the input at t + d (the symbol read then).
+            valid = torch.arange(steps - delay)[None, :] + delay < split.lengths[:, None]
+            seen = split.x[:, delay:][valid]
+            targets = split.y[:, : steps - delay][valid]
+            table = {}
+            for row, target in zip(seen.numpy(), targets.numpy(), strict=True):
+                assert table.setdefault(row.tobytes(), int(target)) == int(target)
+            continue
+        # Real targets: an affine function of the inputs up to step t + d (least squares).
+        t = steps - 1 - delay
+        features = split.x[:, : t + delay + 1].reshape(len(split), -1).double()
+        design = torch.cat([features, torch.ones(len(split), 1, dtype=torch.float64)], dim=1)
+        target = split.y[:, t, channel].double()
+        assert design.shape[0] > design.shape[1], "too few sequences for the check"
+        solution = torch.linalg.lstsq(design, target[:, None]).solution
+        residual = target - (design @ solution)[:, 0]
+        assert residual.var() <= 1e-8 * max(target.var().item(), 1e-12), (channel, delay)

@@ -13,18 +13,21 @@ from loopzoo.topologies import TOPOLOGIES
 # Non-default options per topology (the defaults are always a case). A new topology is covered
 # with its defaults without an entry here.
 VARIANTS: dict[str, list[dict]] = {
-    "hidden-feedback": [{"nonlinearity": "relu"}],
+    "hidden-feedback": [{"nonlinearity": "relu"}, {"nonlinearity": "relu", "init": "identity"}],
     "output-feedback": [
         {"output_kind": "classes"},
         {"output_kind": "classes", "fed_back": "onehot"},
         {"nonlinearity": "relu", "fed_back": "detached"},
+        {"delay": 3},
+        {"delay": 2, "output_kind": "classes"},
     ],
     "stacked": [{"num_layers": 3, "dropout": 0.3}, {"num_layers": 1, "nonlinearity": "relu"}],
     "deep-transition": [
         {"transition_depth": 3, "output_depth": 2, "shortcut": True},
         {"transition_depth": 1, "output_depth": 3},
     ],
-    "residual-skip": [{"mode": "gated", "num_layers": 2}, {"scale": 0.5, "num_layers": 2}],
+    "residual-skip": [{"num_layers": 2}, {"mode": "scaled"},
+                      {"mode": "scaled", "scale": 0.5, "num_layers": 2}],
     "lstm": [{"num_layers": 2, "dropout": 0.2}],
     "gru": [{"num_layers": 2}],
 }

@@ -131,3 +131,76 @@ def test_detached_feedback_cuts_the_gradient_path_only() -> None:
     (g_detached,) = torch.autograd.grad(y_detached[:, -1].sum(), x)
     assert bool((g_detached[:, :-1] == 0).all())  # only the last input reaches the last output
     assert bool((g_value[:, :-1] != 0).any())
+
+
+def _line(history: torch.Tensor, t: int, depth: int) -> torch.Tensor:
+    """The state before step t: fed values of steps t-1, ..., t-D, newest first; history[:, j]
+    is the value of step j - D (the carried line oldest first, then the fed values)."""
+    return history[:, t : t + depth].flip(1).reshape(history.shape[0], -1)
+
+
+@pytest.mark.parametrize("delay", [2, [1, 3, 2, 1]])
+def test_delayed_teacher_forcing_feeds_the_measured_value_d_steps_back(delay) -> None:
+    """With delay d, step t is fed the target of step t - d: a forecast h steps ahead is measured
+    h steps later (series-parallel model, Narendra & Parthasarathy 1990), never earlier."""
+    model = _model(delay=delay)
+    depth = max(delay) if isinstance(delay, list) else delay
+    x = torch.randn(B, T, IN, dtype=torch.float64)
+    targets = torch.randn(B, T, OUT, dtype=torch.float64)
+    start = torch.randn(B, depth * OUT, dtype=torch.float64)
+    assert model.state_sizes() == (depth * OUT,)
+    y, (final,) = model(x, (start,), targets=targets, teacher_forcing=1.0)
+    history = torch.cat([start.view(B, depth, OUT).flip(1), targets], dim=1)
+    for t in range(T):
+        y_t, _ = model.step(x[:, t], (_line(history, t, depth),))
+        torch.testing.assert_close(y[:, t], y_t, **TOL)
+    torch.testing.assert_close(final, _line(history, T, depth), **TOL)
+    # The output at step t does not move when a target of step t - d + 1 or later changes.
+    delays = delay if isinstance(delay, list) else [delay] * OUT
+    for channel, d in enumerate(delays):
+        changed = targets.clone()
+        changed[:, T - d :, channel] += 1.0
+        moved, _ = model(x, (start,), targets=changed, teacher_forcing=1.0)
+        torch.testing.assert_close(moved, y, **TOL)
+
+
+@pytest.mark.parametrize("delay", [2, [1, 3, 2, 1]])
+def test_delayed_free_running_feeds_its_own_output_d_steps_back(delay) -> None:
+    model = _model(delay=delay)
+    x = torch.randn(B, T, IN, dtype=torch.float64)
+    y, (final,) = model(x, teacher_forcing=0.0)
+    state = model.init_state(B)
+    for t in range(T):
+        y_t, state = model.step(x[:, t], state)
+        torch.testing.assert_close(y[:, t], y_t, **TOL)
+    torch.testing.assert_close(final, state[0], **TOL)
+    if delay == 2:  # nothing fed back yet before step d: the first d outputs ignore W
+        fed = model._fed(model.init_state(B)[0])
+        assert torch.equal(fed, torch.zeros_like(fed))
+
+
+def test_delayed_teacher_forcing_holds_the_line_past_each_length() -> None:
+    model = _model(delay=3)
+    x, targets = torch.randn(B, T, IN, dtype=torch.float64), torch.randn(B, T, OUT).double()
+    start = torch.randn(B, 3 * OUT, dtype=torch.float64)
+    lengths = torch.tensor([T, 2, 1])
+    _, (final,) = model(x, (start,), targets=targets, teacher_forcing=1.0, lengths=lengths)
+    for row, length in enumerate(lengths.tolist()):
+        _, (alone,) = model(x[row : row + 1, :length], (start[row : row + 1],),
+                            targets=targets[row : row + 1, :length], teacher_forcing=1.0)
+        torch.testing.assert_close(final[row : row + 1], alone, **TOL)
+
+
+@pytest.mark.parametrize(("options", "message"), [
+    ({"delay": 0}, "delay"),
+    ({"delay": [1, 2]}, "one delay per output channel"),
+    ({"delay": [1, 2, 3, 4], "output_kind": "classes"}, "one integer for classes"),
+    ({"delay": True}, "delay"),
+])
+def test_bad_delays_are_refused(options, message) -> None:
+    with pytest.raises(ValueError, match=message):
+        _model(**options)
+
+
+def test_equal_delays_are_stored_as_one_number() -> None:
+    assert _model(delay=[2, 2, 2, 2]).options["delay"] == 2

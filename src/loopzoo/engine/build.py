@@ -9,9 +9,10 @@ import torch
 
 import loopzoo
 from loopzoo.engine.errors import ConfigError
+from loopzoo.engine.observed_feedback import delay_option
 from loopzoo.engine.settings import RunSettings
 
-__all__ = ["build_model", "build_task"]
+__all__ = ["build_model", "build_task", "model_options"]
 
 
 def build_task(settings: RunSettings) -> Any:
@@ -22,22 +23,32 @@ def build_task(settings: RunSettings) -> Any:
         raise ConfigError(f"task {settings.task!r}: {error}") from error
 
 
+def model_options(settings: RunSettings, task: Any) -> dict[str, Any]:
+    """The configured options, plus for output feedback the ``delay`` the task's observations
+    allow (``loopzoo.engine.observed_feedback``)."""
+    options = dict(settings.model_options)
+    if settings.model in loopzoo.available() and getattr(
+        loopzoo.topologies.TOPOLOGIES.get(settings.model), "feeds_back_output", False
+    ):
+        options["delay"] = delay_option(task, options)
+    return options
+
+
 def build_model(settings: RunSettings, task: Any) -> torch.nn.Module:
     """The configured topology at the hidden width that meets ``task.budget``, seeded."""
     sizes = {"input_size": task.input_size, "output_size": task.output_size}
+    options = model_options(settings, task)
     try:
         hidden = loopzoo.width_for_budget(
-            settings.model, params=settings.budget, **sizes, **settings.model_options
+            settings.model, params=settings.budget, **sizes, **options
         )
     except (ValueError, TypeError) as error:
         raise ConfigError(
             f"task.budget = {settings.budget} cannot be met by model {settings.model!r} with "
-            f"options {settings.model_options}: {error}"
+            f"options {options}: {error}"
         ) from error
     L.seed_everything(settings.seed, verbose=False)
     try:
-        return loopzoo.create(
-            settings.model, hidden_size=hidden, **sizes, **settings.model_options
-        )
+        return loopzoo.create(settings.model, hidden_size=hidden, **sizes, **options)
     except (ValueError, TypeError) as error:
         raise ConfigError(f"model {settings.model!r}: {error}") from error

@@ -24,9 +24,11 @@ def better(candidate: float, incumbent: float | None, goal: str) -> bool:
 class SplitScorer:
     """Scores a model on one full split with ``task.score``.
 
-    Feedback topologies are scored twice: teacher-forced (the true previous targets fed back,
-    ``teacher_forcing=1.0``) and free running (their own outputs fed back, ``0.0``); the gap
-    between the two is the exposure bias. Other topologies are scored once under ``"plain"``.
+    Feedback topologies are scored free running (their own outputs fed back,
+    ``teacher_forcing=0.0``) and, with ``measured=True`` (the task's targets are observed later,
+    and the model's ``delay`` feeds each back only once it is), with the measured values fed back
+    (``1.0``, the series-parallel configuration); the gap between the two is the exposure bias.
+    Other topologies are scored once under ``"plain"``.
 
     Example::
 
@@ -34,10 +36,12 @@ class SplitScorer:
         scores["plain"]["mse"]
     """
 
-    def __init__(self, task: Any, split: Any, *, feeds_back: bool, batch_size: int = 512) -> None:
+    def __init__(self, task: Any, split: Any, *, feeds_back: bool, measured: bool = False,
+                 batch_size: int = 512) -> None:
         self.task = task
         self.split = split
         self.feeds_back = feeds_back
+        self.measured = measured
         self.batch_size = batch_size
 
     @torch.no_grad()
@@ -63,13 +67,14 @@ class SplitScorer:
         return prediction
 
     def score(self, model: torch.nn.Module) -> dict[str, dict[str, float]]:
-        """Metric groups: ``plain``, or ``teacher_forced`` and ``free_running`` for feedback."""
+        """Metric groups: ``plain``, or for feedback ``free_running`` and, if measured,
+        ``measured_feedback``."""
         if not self.feeds_back:
             return {"plain": self._scored(self.predict(model, None))}
-        return {
-            "teacher_forced": self._scored(self.predict(model, 1.0)),
-            "free_running": self._scored(self.predict(model, 0.0)),
-        }
+        groups = {"free_running": self._scored(self.predict(model, 0.0))}
+        if self.measured:
+            groups["measured_feedback"] = self._scored(self.predict(model, 1.0))
+        return groups
 
     def _scored(self, prediction: torch.Tensor) -> dict[str, float]:
         scores = self.task.score(prediction, self.split)

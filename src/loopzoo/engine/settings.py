@@ -17,7 +17,7 @@ from loopzoo.engine.errors import ConfigError
 
 __all__ = ["FEEDBACK_SELECTIONS", "RunSettings", "read_settings"]
 
-FEEDBACK_SELECTIONS = ("free_running", "teacher_forced")
+FEEDBACK_SELECTIONS = ("free_running", "measured_feedback")
 
 # Trainer arguments the training engine sets itself; passing them would break its protocol.
 _RESERVED_TRAINER_KEYS = {

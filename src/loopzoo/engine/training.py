@@ -37,6 +37,11 @@ from loopzoo.engine.errors import ConfigError
 from loopzoo.engine.evaluation import NonFinitePrediction, SplitScorer
 from loopzoo.engine.lightning_setup import fit_quietly
 from loopzoo.engine.module import SequenceModule
+from loopzoo.engine.observed_feedback import (
+    measured_feedback_exists,
+    observed_plan,
+    selected_group,
+)
 from loopzoo.engine.optimizers import optimizer_factory
 from loopzoo.engine.provenance import data_record, utc_now, versions
 from loopzoo.engine.schedules import TeacherForcingPlan
@@ -87,7 +92,9 @@ class _Run:
         self.feeds_back = bool(getattr(model, "feeds_back_output", False))
         self.train, self.val, self.test = (task.split(s) for s in ("train", "val", "test"))
         _check_protocol(settings, len(self.train.x))
-        self.select_group = settings.feedback_select if self.feeds_back else "plain"
+        self.measured = self.feeds_back and measured_feedback_exists(task)
+        self.select_group = (selected_group(settings.feedback_select, task) if self.feeds_back
+                             else "plain")
         try:
             optimizer_factory(settings.optimizer, lr=settings.lr,
                               weight_decay=settings.weight_decay, extra=settings.optimizer_extra)
@@ -103,7 +110,7 @@ class _Run:
                                  extra=settings.optimizer_extra)
         return SequenceModule(
             copy.deepcopy(self.model), self.task,
-            SplitScorer(self.task, self.val, feeds_back=self.feeds_back),
+            SplitScorer(self.task, self.val, feeds_back=self.feeds_back, measured=self.measured),
             batch_size=settings.batch_size, optimizer=make,
             grad_clip_norm=settings.grad_clip_norm, plan=self.plan,
             tbptt_chunk=settings.tbptt_chunk, val_every=settings.val_every,
@@ -162,14 +169,16 @@ class _Run:
         return module, {"chosen": chosen, **lr_record}
 
 
-def _metrics(groups_val: dict[str, dict[str, float]],
-             groups_test: dict[str, dict[str, float]]) -> dict[str, dict[str, float]]:
-    if "plain" in groups_val:
-        return {"val": groups_val["plain"], "test": groups_test["plain"]}
-    return {
-        "val": groups_val["teacher_forced"], "val_free_running": groups_val["free_running"],
-        "test": groups_test["teacher_forced"], "test_free_running": groups_test["free_running"],
-    }
+def _metrics(groups_val: dict[str, dict[str, float]], groups_test: dict[str, dict[str, float]],
+             selected: str) -> dict[str, dict[str, float]]:
+    """``val`` / ``test``: what a deployed model scores (for output feedback the selected
+    configuration); output feedback adds every configuration it was scored in."""
+    metrics = {"val": groups_val[selected], "test": groups_test[selected]}
+    for group in groups_val:
+        if group != "plain":
+            metrics[f"val_{group}"] = groups_val[group]
+            metrics[f"test_{group}"] = groups_test[group]
+    return metrics
 
 
 def train_and_evaluate(cfg: DictConfig, run_dir: Path) -> dict[str, Any]:
@@ -190,7 +199,7 @@ def train_and_evaluate(cfg: DictConfig, run_dir: Path) -> dict[str, Any]:
     settings = read_settings(cfg)
     task = build_task(settings)
     model = build_model(settings, task)
-    plan = _feedback_plan(settings, model)
+    plan, plan_note = observed_plan(_feedback_plan(settings, model), task)
     run = _Run(settings, task, model, plan, run_dir)
     body: dict[str, Any] = {
         "kind": "model", "status": "ok", "reason": None, "diverged_at_step": None,
@@ -206,7 +215,9 @@ def train_and_evaluate(cfg: DictConfig, run_dir: Path) -> dict[str, Any]:
     }
     if run.feeds_back:
         body["feedback"] = {**plan.describe(), "fed_back": model.options.get("fed_back"),
-                            "selected_on": run.select_group}
+                            "selected_on": run.select_group,
+                            "observable": task.observability(),
+                            "delay": model.options.get("delay"), "note": plan_note}
     run_dir.mkdir(parents=True, exist_ok=True)
     try:
         _train(run, body)
@@ -252,12 +263,14 @@ def _train(run: _Run, body: dict[str, Any]) -> None:
     body["lr"]["best_step"] = state.best_step
     body["lr"]["early_stopped"] = state.early_stopped
     try:
-        val = SplitScorer(run.task, run.val, feeds_back=run.feeds_back).score(model)
-        test = SplitScorer(run.task, run.test, feeds_back=run.feeds_back).score(model)
+        val = SplitScorer(run.task, run.val, feeds_back=run.feeds_back,
+                          measured=run.measured).score(model)
+        test = SplitScorer(run.task, run.test, feeds_back=run.feeds_back,
+                           measured=run.measured).score(model)
     except NonFinitePrediction as error:
         body.update(status="diverged", reason=f"{error} (after training, best weights)")
         return
-    body["metrics"] = _metrics(val, test)
+    body["metrics"] = _metrics(val, test, run.select_group)
     metadata = {"task": run.settings.task, "task_options": run.settings.task_options,
                 "seed": run.settings.seed, "metrics": body["metrics"]["test"]}
     saved = loopzoo.save(model, run.run_dir / "artifact", json_safe(metadata),

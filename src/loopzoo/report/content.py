@@ -58,8 +58,12 @@ def _reading_guide(summary: Summary) -> Bullets:
         "neither, which is no evidence of equal quality, and gives the seeds per row a t-test "
         "would need to separate the pair at the observed spread (power 80%); 'untested' means a "
         "side has fewer than 2 usable seeds.",
-        "Output-feedback rows selected on free running are ranked on their free-running test "
-        "metric (feeding back their own outputs); the exposure-bias table shows both figures.",
+        "Output-feedback rows are ranked on what a deployed model scores: free running (its own "
+        "outputs fed back), or where selected so, with only measured outputs fed back once they "
+        "are observed. A one-step figure with measured outputs fed back is shown only where the "
+        "task's targets are observed later (next-step prediction, forecasts), in the "
+        "exposure-bias table; on tasks whose targets are never observed (sequence labels) there "
+        "is none.",
         "Rank 1 is best; equal values share a rank. Classical rows are ranked with the "
         "topologies; bounds (exact optima, noise floors) are shown apart with the gap to them, "
         "never ranked or recommended. The cross-task mean rank counts topologies only.",
@@ -190,9 +194,10 @@ def _exposure_table(task: TaskSummary) -> Table | None:
     if not rows:
         return None
     return Table(
-        f"Exposure bias on {task.label}: teacher-forced against free-running test {task.metric}",
-        ("topology", "feedback (mode / schedule / fed back)", "teacher-forced", "free-running",
-         "gap (free − forced)"),
+        f"Exposure bias on {task.label}: one-step with measured outputs against free-running "
+        f"test {task.metric}",
+        ("topology", "feedback (mode / schedule / fed back)", "one-step, measured outputs",
+         "free-running", "gap (free − measured)"),
         tuple(
             (
                 r.label,

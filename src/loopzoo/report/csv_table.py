@@ -84,7 +84,7 @@ COLUMNS: tuple[tuple[str, Value], ...] = (
     *((f"reach_{phase}_{factor}", lambda t, r, k=f"{phase}_{factor}": r.reach.get(k))
       for phase, _ in REACH_PHASES for factor in REACH_FACTORS),
     ("feedback", lambda t, r: r.exposure and "; ".join(r.exposure.settings)),
-    ("teacher_forced_mean",
+    ("measured_outputs_mean",
      lambda t, r: r.exposure and r.exposure.teacher_forced and r.exposure.teacher_forced.mean),
     ("free_running_mean",
      lambda t, r: r.exposure and r.exposure.free_running and r.exposure.free_running.mean),

@@ -59,7 +59,8 @@ class Comparison:
 
 @dataclass(frozen=True)
 class Exposure:
-    """Teacher-forced vs free-running test metric of an output-feedback row; gap = free - forced."""
+    """One-step test metric with measured outputs fed back (``teacher_forced``: teacher forcing
+    of observed values only) vs free running, of an output-feedback row; gap = free - forced."""
 
     settings: tuple[str, ...]
     teacher_forced: Interval | None

@@ -51,11 +51,13 @@ def _metric(run: Run, split: str, metric: str | None) -> float | None:
 
 
 def ranked_split(run: Run) -> str:
-    """The metrics group a run is ranked on: ``test``, except for output-feedback runs selected
-    on free running (``feedback.selected_on``), which are ranked on ``test_free_running``, the
-    figure they reach feeding back their own outputs."""
+    """The metrics group a run is ranked on: what a deployed model scores. ``test``, except for
+    output-feedback runs not selected on measured feedback, which are ranked on
+    ``test_free_running`` (feeding back their own outputs). Records written before measured
+    feedback existed held a teacher-forced ``test`` that may have fed back values a deployed
+    model never has, so they are ranked free running too."""
     feedback = run.feedback or {}
-    if feedback.get("selected_on") == "free_running" and "test_free_running" in run.metrics:
+    if feedback.get("selected_on") != "measured_feedback" and "test_free_running" in run.metrics:
         return "test_free_running"
     return "test"
 
@@ -136,7 +138,10 @@ def _feedback_setting(feedback: Mapping[str, Any]) -> str:
 
 
 def _exposure(runs: Sequence[Run], metric: str | None, confidence: float) -> Exposure | None:
-    fed = [r for r in runs if r.feedback is not None]
+    """Measured-feedback (one step, measured outputs fed back) against free-running figures;
+    only for runs whose fed-back targets are observations a deployed model has at that step
+    (``test_measured_feedback``): elsewhere the gap would measure a leak, not exposure bias."""
+    fed = [r for r in runs if r.feedback is not None and "test_measured_feedback" in r.metrics]
     if not fed:
         return None
     settings = sorted({_feedback_setting(r.feedback) for r in fed if r.feedback is not None})
@@ -144,7 +149,8 @@ def _exposure(runs: Sequence[Run], metric: str | None, confidence: float) -> Exp
     for run in fed:
         if run.status != "ok":
             continue
-        tf, fr = _metric(run, "test", metric), _metric(run, "test_free_running", metric)
+        tf = _metric(run, "test_measured_feedback", metric)
+        fr = _metric(run, "test_free_running", metric)
         if tf is not None:
             forced.append(tf)
         if fr is not None:

@@ -212,8 +212,9 @@ def _exposure_sentence(pick: Row, task: TaskSummary) -> str | None:
             return (
                 f"{row.label} feeds back its outputs: test {task.metric} "
                 f"{fmt.number(exposure.free_running.mean)} free-running against "
-                f"{fmt.number(exposure.teacher_forced.mean)} teacher-forced "
-                f"({'; '.join(exposure.settings)}); expect the free-running figure in service."
+                f"{fmt.number(exposure.teacher_forced.mean)} one-step with measured outputs "
+                f"({'; '.join(exposure.settings)}); expect the free-running figure in service "
+                "unless measured outputs are fed back there."
             )
     return None
 

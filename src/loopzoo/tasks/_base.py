@@ -192,6 +192,35 @@ class Task(ABC):
     def baselines(self) -> dict[str, dict[str, float]]:
         """Classical baselines, each scored by ``score`` on the test split."""
 
+    def observed_after(self) -> tuple[int | None, ...]:
+        """When each target becomes observable, one entry per target: per output channel for
+        regression, one for the class of a classification task.
+
+        An entry d means the target of step t is measured by step t + d (it is then an input or a
+        measurement a deployed model has): 1 for next-step prediction, h for a forecast h steps
+        ahead. None means it is never observed (a sequence label, a sum of marked values): a
+        deployed model never sees it. Output feedback may feed back under teacher forcing only
+        what is observed at that step (the series-parallel model of Narendra & Parthasarathy
+        1990). The base declares every target never observed; tasks whose targets are measured
+        later override this.
+        """
+        return (None,) * self.target_count
+
+    @property
+    def target_count(self) -> int:
+        """Targets per step: the output channels for regression, one class for classification."""
+        return self.output_size if self.kind == "regression" else 1
+
+    def observability(self) -> str:
+        """``observed_after`` in one word for records: "never", "next_step" (every target is
+        the next step's input) or "after:<d>" (comma-separated delays, "never" where one is)."""
+        delays = self.observed_after()
+        if all(d is None for d in delays):
+            return "never"
+        if all(d == 1 for d in delays):
+            return "next_step"
+        return "after:" + ",".join("never" if d is None else str(d) for d in delays)
+
     def describe(self) -> dict[str, Any]:
         """JSON-serialisable options and data facts for the run record."""
         sizes = {}
@@ -203,7 +232,8 @@ class Task(ABC):
                    for f in dataclasses.fields(self.options)}
         return {"name": self.name, "kind": self.kind, "seed": self.seed, "options": options,
                 "input_size": self.input_size, "output_size": self.output_size,
-                "metric": self.metric, "goal": self.goal, "splits": sizes, **self._facts()}
+                "metric": self.metric, "goal": self.goal, "splits": sizes,
+                "observable": self.observability(), **self._facts()}
 
     def data_files(self) -> list[dict[str, Any]]:
         """The user's files this task read, one dict each: ``role`` (the option naming it),

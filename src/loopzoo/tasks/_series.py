@@ -121,6 +121,11 @@ class SeriesTask(RegressionTask):
         self._starts: dict[str, np.ndarray] = {}
         self._ar_order: int | None = None
 
+    def observed_after(self) -> tuple[int | None, ...]:
+        """Each target column is also an input: its value h steps ahead (or its change over those
+        h steps) is observed h steps later, per channel (target column, then horizon)."""
+        return tuple(h for _ in self.data.targets for h in self.horizons)
+
     @abstractmethod
     def _load(self) -> SeriesData:
         """Read the series (data units), raising a clear error for bad input."""

@@ -54,6 +54,10 @@ class NextSymbolTask(ClassificationTask):
         """The alphabet (one class per symbol); each string is read whole from the zero state."""
         return {"kind": "next-symbol", "alphabet": list(self.alphabet), "chunk": None}
 
+    def observed_after(self) -> tuple[int | None, ...]:
+        """The next symbol is the next step's input: observed one step later."""
+        return (1,)
+
     @abstractmethod
     def _symbol_strings(self) -> dict[str, tuple[list[np.ndarray], np.ndarray]]:
         """Per split: the id strings and their (N, 2) spans."""

@@ -76,6 +76,10 @@ class SinesTask(RegressionTask):
         self.scaler = Standardizer.identity(self.output_size)
         self._clean: dict[str, np.ndarray] = {}
 
+    def observed_after(self) -> tuple[int | None, ...]:
+        """v_{t+h} is the input h steps later: each horizon's channel is observed after h."""
+        return tuple(self.horizons)
+
     def _make_splits(self) -> dict[str, Split]:
         sizes = self.options.sizes()
         spans = sequence_spans(sizes)

@@ -3,6 +3,11 @@
     h_t = f(U x_t + W h_{t-1} + b)        f = tanh or relu
     y_t = V h_t + c
 
+init='identity' with nonlinearity='relu' is the IRNN of Le, Jaitly & Hinton ("A Simple Way to
+Initialize Recurrent Networks of Rectified Linear Units", 2015): W starts as the identity and
+the biases b, c at zero, so with no input the state is carried unchanged; U and V keep the
+zoo's default initialisation.
+
 Shapes: x (B, T, I), h_t (B, H), y (B, T, O). State: (h,).
 """
 
@@ -10,6 +15,7 @@ from __future__ import annotations
 
 from typing import Any
 
+import torch
 from torch import Tensor
 
 from loopzoo.topologies._base import (
@@ -22,7 +28,7 @@ from loopzoo.topologies._base import (
     uniform_init,
 )
 from loopzoo.topologies._elman import AdditiveRecurrence
-from loopzoo.topologies._options import NONLINEARITY
+from loopzoo.topologies._options import NONLINEARITY, Option, choice
 
 __all__ = ["HiddenFeedback"]
 
@@ -31,7 +37,9 @@ __all__ = ["HiddenFeedback"]
 class HiddenFeedback(RecurrentTopology):
     """Elman network: the hidden state feeds back into itself; a linear readout gives y.
 
-    Options: nonlinearity ('tanh' | 'relu', default 'tanh').
+    Options: nonlinearity ('tanh' | 'relu', default 'tanh'); init ('uniform' | 'identity',
+    default 'uniform': every parameter from U(-1/sqrt(H), 1/sqrt(H)); 'identity': W = I and zero
+    biases, with 'relu' the IRNN of Le et al. 2015).
 
     >>> import loopzoo, torch
     >>> model = loopzoo.create("hidden-feedback", input_size=3, output_size=2, hidden_size=8)
@@ -40,7 +48,10 @@ class HiddenFeedback(RecurrentTopology):
     (torch.Size([4, 10, 2]), torch.Size([4, 8]))
     """
 
-    option_specs = {"nonlinearity": NONLINEARITY}
+    option_specs = {
+        "nonlinearity": NONLINEARITY,
+        "init": Option("uniform", choice("uniform", "identity"), "how W and the biases start"),
+    }
 
     def __init__(self, **sizes_and_options: Any) -> None:
         super().__init__(**sizes_and_options)
@@ -49,6 +60,11 @@ class HiddenFeedback(RecurrentTopology):
         )
         self.readout = make_readout(self.hidden_size, self.output_size)
         uniform_init(self, self.hidden_size)
+        if self.options["init"] == "identity":
+            with torch.no_grad():
+                self.cell.weight_hh.copy_(torch.eye(self.hidden_size))
+                self.cell.bias.zero_()
+                self.readout.bias.zero_()
 
     def state_sizes(self) -> tuple[int, ...]:
         return (self.hidden_size,)

@@ -1,21 +1,29 @@
-"""output-feedback: the Jordan network (Jordan 1986): the previous output drives the state.
+"""output-feedback: the Jordan network (Jordan 1986): an earlier output drives the state.
 
-    h_t = f(U x_t + W o_{t-1} + b)
+    h_t = f(U x_t + W o_{t-d} + b)        d = delay, per output channel (default 1)
     y_t = V h_t + c
     o_t = the fed-back value: the target y*_t (teacher forcing, Williams & Zipser 1989), or the
           model's own output: y_t for real outputs, softmax(y_t) or onehot(argmax y_t) for classes
 
+With d = 1 this is Jordan's network. A larger d suits targets that are measured only d steps
+later (a forecast h steps ahead is observed after h): under teacher forcing the model is then
+fed the measured y*_{t-d} that a deployed model also has (the series-parallel model of Narendra &
+Parthasarathy 1990), and free running its own estimate y_{t-d} of the same value (their parallel
+model).
+
 Teacher forcing (teacher_forcing=1.0) makes every step independent, so the whole sequence runs as
-one batched pass: o_{t-1} is the target shifted one step, with the carried state at t = 0.
+one batched pass: o_{t-d} is the target shifted d steps, with the carried state before that.
 Free running (0.0) and scheduled sampling (Bengio et al. 2015; strictly between: one coin per
-time step and sequence picks target or own output) run the time loop.
+time step and sequence picks target or own output as o_t) run the time loop.
 
 Shapes: x (B, T, I), h_t (B, H), y (B, T, O); targets (B, T, O) real, or for classes (B, T)
-class ids / (B, T, O) probabilities. State: (o,) of shape (B, O), the value fed into the next step.
+class ids / (B, T, O) probabilities. State: (o,) of shape (B, D * O), D = the largest delay: the
+last D fed values o_{t-1}, ..., o_{t-D}, newest first (D = 1: just o_{t-1}).
 """
 
 from __future__ import annotations
 
+import numbers
 from typing import Any
 
 import torch
@@ -40,6 +48,26 @@ from loopzoo.topologies._options import NONLINEARITY, Option, choice
 __all__ = ["OutputFeedback"]
 
 _FED_BACK = {"real": ("value", "detached"), "classes": ("distribution", "onehot")}
+_MAX_DELAY = 100_000
+
+
+def _check_delay(name: str, value: Any) -> int | list[int]:
+    """A delay d >= 1 for every channel, or a list with one per output channel."""
+    accepted = f"an integer in [1, {_MAX_DELAY}] or a non-empty list of them (one per output)"
+
+    def one(item: Any) -> int:
+        if (not isinstance(item, numbers.Integral) or isinstance(item, bool)
+                or not 1 <= item <= _MAX_DELAY):
+            raise ValueError(f"{name} must be {accepted}, got {value!r}")
+        return int(item)
+
+    if isinstance(value, (list, tuple)):
+        if not value:
+            raise ValueError(f"{name} must be {accepted}, got {value!r}")
+        delays = [one(item) for item in value]
+        # One delay for every channel is stored as that number.
+        return delays[0] if len(set(delays)) == 1 else delays
+    return one(value)
 
 
 @register("output-feedback")
@@ -50,6 +78,8 @@ class OutputFeedback(RecurrentTopology):
     fed_back, what the model feeds back of its own output: for real 'value' (default) or
     'detached' (the value without a gradient path); for classes 'distribution' (softmax, default)
     or 'onehot' (of the argmax). Teacher forcing always feeds the (one-hot) target.
+    delay: d, the output of step t - d is fed into step t (default 1); a list gives one per
+    output channel (real outputs), e.g. the horizons of a multi-horizon forecast.
 
     >>> import loopzoo, torch
     >>> model = loopzoo.create("output-feedback", input_size=3, output_size=2, hidden_size=8)
@@ -68,6 +98,7 @@ class OutputFeedback(RecurrentTopology):
             "auto", choice("auto", *_FED_BACK["real"], *_FED_BACK["classes"]),
             "own output fed back when free running ('auto': value / distribution)",
         ),
+        "delay": Option(1, _check_delay, "steps between an output and the step it is fed into"),
     }
 
     def __init__(self, **sizes_and_options: Any) -> None:
@@ -86,6 +117,20 @@ class OutputFeedback(RecurrentTopology):
                 f"'output-feedback' option fed_back={fed_back!r} does not fit "
                 f"output_kind={kind!r}; accepted: {', '.join(map(repr, _FED_BACK[kind]))}"
             )
+        delay = self.options["delay"]
+        delays = delay if isinstance(delay, list) else [delay] * self.output_size
+        if len(delays) != self.output_size or (kind == "classes" and isinstance(delay, list)):
+            raise ValueError(
+                f"'output-feedback' option delay={delay!r} needs one delay per output channel "
+                f"({self.output_size}) for real outputs, one integer for classes"
+            )
+        self.delays = tuple(delays)
+        self.depth = max(delays)  # D: fed values kept in the state
+        # Position of o_{t-d_c}[c] in the state (block d_c - 1, newest first), per channel.
+        self.register_buffer(
+            "_read", torch.tensor([(d - 1) * self.output_size + c for c, d in enumerate(delays)]),
+            persistent=False,
+        )
         self.activation = activation(self.options["nonlinearity"])
         self.weight_ih = nn.Parameter(torch.empty(self.hidden_size, self.input_size))
         self.weight_oh = nn.Parameter(torch.empty(self.hidden_size, self.output_size))
@@ -94,7 +139,21 @@ class OutputFeedback(RecurrentTopology):
         uniform_init(self, self.hidden_size)
 
     def state_sizes(self) -> tuple[int, ...]:
-        return (self.output_size,)
+        return (self.depth * self.output_size,)
+
+    def _fed(self, line: Tensor) -> Tensor:
+        """o_{t-d} (B, O) from the state's line of fed values (B, D * O)."""
+        if self.depth == 1:
+            return line
+        if len(set(self.delays)) == 1:
+            return line[:, -self.output_size:]
+        return line.index_select(1, self._read)
+
+    def _push(self, line: Tensor, fed: Tensor) -> Tensor:
+        """The line after step t: o_t enters (newest first), the oldest value leaves."""
+        if self.depth == 1:
+            return fed
+        return torch.cat([fed, line[:, : -self.output_size]], dim=1)
 
     def _feed(self, y: Tensor) -> Tensor:
         """The model's own output as it is fed back."""
@@ -156,12 +215,12 @@ class OutputFeedback(RecurrentTopology):
             u = torch.cat([u, targets.transpose(0, 1), coins], dim=-1)  # (T, B, H + O + 1)
 
         def cell(step_input: Tensor, carried: State) -> tuple[Tensor, State]:
-            y_t = self._readout_step(step_input[:, :hidden], carried[0])
+            y_t = self._readout_step(step_input[:, :hidden], self._fed(carried[0]))
             fed = self._feed(y_t)
             if teacher_forcing > 0.0:
                 target_t, coin_t = step_input[:, hidden:-1], step_input[:, -1:]
                 fed = torch.where(coin_t > 0.0, target_t, fed)
-            return y_t, (fed,)
+            return y_t, (self._push(carried[0], fed),)
 
         ys, final = scan(cell, u, state, time_major_mask(valid))
         return batch_first(ys), final
@@ -169,22 +228,34 @@ class OutputFeedback(RecurrentTopology):
     def _teacher_forced(
         self, x: Tensor, state: State, valid: Tensor | None, targets: Tensor
     ) -> tuple[Tensor, State]:
-        """All steps at once: o_{t-1} = targets[:, t-1], and the carried state at t = 0."""
-        batch, steps = x.shape[0], x.shape[1]
-        # Slicing after the concatenation keeps T symbolic under torch.export (slicing the
-        # targets first made the exported program guard on the traced length).
-        previous = torch.cat([state[0].unsqueeze(1), targets], dim=1)[:, :-1]  # (B, T, O)
+        """All steps at once: o_{t-d} = targets[:, t-d], from the carried state for t < d."""
+        batch, steps, out, depth = x.shape[0], x.shape[1], self.output_size, self.depth
+        # history[:, j] is the value fed at step j - D: the carried line oldest first, then the
+        # targets. Slicing after the concatenation keeps T symbolic under torch.export (slicing
+        # the targets first made the exported program guard on the traced length).
+        carried = state[0].view(batch, depth, out).flip(1)
+        history = torch.cat([carried, targets], dim=1)  # (B, D + T, O)
+        if len(set(self.delays)) == 1:
+            delay = self.delays[0]
+            previous = history[:, depth - delay : -delay]  # (B, T, O)
+        else:
+            previous = torch.stack(
+                [history[:, depth - d : -d, c] for c, d in enumerate(self.delays)], dim=-1
+            )
         inputs = torch.cat([x, previous], dim=-1).view(batch * steps, -1)  # (B*T, I + O)
         weight = torch.cat([self.weight_ih, self.weight_oh], dim=1)  # (H, I + O)
         pre = torch.addmm(self.bias, inputs, weight.t())  # (B*T, H)
         h = torch.relu(pre) if self.options["nonlinearity"] == "relu" else batched_tanh(pre)
-        y = self.readout(h).view(batch, steps, self.output_size)
+        y = self.readout(h).view(batch, steps, out)
+        # The final line: the values of the last D valid steps, newest first.
         if valid is None:
-            return y, (targets[:, -1],)
-        lengths = valid.sum(dim=1)
-        last = targets[torch.arange(x.shape[0], device=x.device), (lengths - 1).clamp(min=0)]
-        return y, (torch.where((lengths > 0).unsqueeze(1), last, state[0]),)
+            return y, (history[:, -depth:].flip(1).reshape(batch, depth * out),)
+        lengths = valid.sum(dim=1)  # step s sits at history index s + D
+        rows = (lengths.unsqueeze(1) + depth - 1) - torch.arange(depth, device=x.device)
+        line = history[torch.arange(batch, device=x.device).unsqueeze(1), rows]  # (B, D, O)
+        return y, (line.reshape(batch, depth * out),)
 
     def step_unchecked(self, x_t: Tensor, state: State) -> tuple[Tensor, State]:
-        y_t = self._readout_step(torch.addmm(self.bias, x_t, self.weight_ih.t()), state[0])
-        return y_t, (self._feed(y_t),)
+        line = state[0]
+        y_t = self._readout_step(torch.addmm(self.bias, x_t, self.weight_ih.t()), self._fed(line))
+        return y_t, (self._push(line, self._feed(y_t)),)

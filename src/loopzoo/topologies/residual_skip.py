@@ -7,7 +7,10 @@
 
 With s = 1 this is a one-layer Recurrent Highway Network with both gates open (Zilly et al. 2017);
 residual recurrent layers for sequence classification: Wang & Tian, EMNLP 2016. The additive path
-keeps dL/dh_{t-k} from shrinking geometrically with k (common practice).
+keeps dL/dh_{t-k} from shrinking geometrically with k (common practice). The gated form is the
+default: the scaled form with s = 1 is an unbounded integrator whose gradient grows with the lag
+and which stayed at the memoryless level on the adding problem where the gated form solved it
+(benchmarks/RESULTS.md, "residual-skip default").
 
 Shapes: x (B, T, I), h^l_t (B, H), y (B, T, O). State: (h^1, ..., h^L).
 """
@@ -81,7 +84,7 @@ class GatedResidualRecurrence(nn.Module):
 class ResidualSkip(RecurrentTopology):
     """Residual recurrence (scaled or gated) with skips across stacked layers.
 
-    Options: nonlinearity ('tanh' | 'relu'), mode ('scaled' | 'gated', default 'scaled'),
+    Options: nonlinearity ('tanh' | 'relu'), mode ('gated' | 'scaled', default 'gated'),
     scale s in (0, 1] for mode='scaled' (default 1.0), num_layers (default 1).
 
     >>> import loopzoo, torch
@@ -93,7 +96,7 @@ class ResidualSkip(RecurrentTopology):
 
     option_specs = {
         "nonlinearity": NONLINEARITY,
-        "mode": Option("scaled", choice("scaled", "gated"), "how the update is weighted"),
+        "mode": Option("gated", choice("gated", "scaled"), "how the update is weighted"),
         "scale": Option(1.0, real(0.0, 1.0, low_open=True), "s for mode='scaled'"),
         "num_layers": num_layers(1),
     }
