@@ -73,6 +73,10 @@ class CharacterTask(NextSymbolTask):
                              np.array([firsts, lasts], dtype=np.int64).T)
         return strings
 
+    def _stream(self, name: str) -> str:
+        start, end = self._bounds[name]
+        return self.text[start:end]
+
     def _facts(self) -> dict[str, Any]:
         return {"source": self.source, "characters": len(self.text),
                 "alphabet_size": len(self.alphabet),
