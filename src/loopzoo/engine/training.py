@@ -337,30 +337,36 @@ def _reach_record(init: list[float], final: list[float]) -> dict[str, Any]:
 
 
 def baseline_records(cfg: DictConfig) -> list[dict[str, Any]]:
-    """One record body per classical baseline of the configured task (``task.baselines()``).
+    """One record body per row of ``task.baselines()`` and ``task.bounds()``.
 
-    Each has ``kind`` ``"baseline"``, ``model`` the baseline's name, test metrics only, and null
-    parameters, cost, curves and gradient reach.
+    Each has ``kind`` (``"baseline"``, ``"bound"`` or ``"reference"``), ``model`` the row's
+    name, ``status`` ``ok`` with test metrics or ``skipped`` with the ``reason``,
+    ``seed_dependent``, ``details`` (what was chosen on train / val), ``cost.fit_seconds``,
+    and null parameters, curves and gradient reach.
 
     Example::
 
-        [b["model"] for b in baseline_records(cfg)]   # e.g. ["predict-mean", ...]
+        [b["model"] for b in baseline_records(cfg)]   # e.g. ["persistence", "ar", ...]
     """
     started = utc_now()
     settings = read_settings(cfg)
     task = _build_task(settings)
     data = _data_record(task)
     records = []
-    for name, metrics in task.baselines().items():
+    for name, row in {**task.baselines(), **task.bounds()}.items():
         records.append(_finite({
-            "kind": "baseline", "status": "ok", "reason": None, "diverged_at_step": None,
+            "kind": row.kind, "status": row.status, "reason": row.reason,
+            "diverged_at_step": None, "seed_dependent": row.seed_dependent,
+            "details": row.details,
             "model": name, "task": settings.task, "suite": settings.suite, "seed": settings.seed,
             "params": None, "budget": settings.budget,
             "sizes": {"input_size": task.input_size, "output_size": task.output_size,
                       "hidden_size": None},
             "versions": versions(), "primary": {"name": task.metric, "goal": task.goal},
-            "metrics": {"test": {k: float(v) for k, v in metrics.items()}},
-            "lr": None, "curves": None, "cost": None, "gradient_reach": None, "feedback": None,
+            "metrics": {"test": {k: float(v) for k, v in row.metrics.items()}}
+            if row.status == "ok" else {},
+            "lr": None, "curves": None, "cost": {"fit_seconds": row.fit_seconds},
+            "gradient_reach": None, "feedback": None,
             "started": started, "finished": utc_now(), "data": data,
         }))
     return records

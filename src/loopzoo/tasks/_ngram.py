@@ -14,7 +14,7 @@ and p_k = p_{k-1} for a context h never seen at order k. ``method``:
 - "kneser-ney": the highest order uses raw counts, every lower order the continuation counts
   N1+(. h w) (how many distinct symbols precede h w), one discount per order as above;
 - "modified-kneser-ney": as "kneser-ney" with three discounts per order, for counts 1, 2 and
-  3 or more: D_j = j - (j + 1) Y n_{j+1} / n_j, Y = n1 / (n1 + 2 n2) (Chen & Goodman eq. 26).
+  3 or more: D_j = j - (j + 1) Y n_{j+1} / n_j, Y = n1 / (n1 + 2 n2) (Chen & Goodman).
 
 Contexts are padded with a start symbol (id C), so a sequence's first symbols are predicted from
 the fact that the sequence starts there, as a recurrent model does from its initial state.
