@@ -168,5 +168,15 @@ def test_baseline_records_follow_the_tasks_baselines():
     assert [r["model"] for r in records] == list(task.baselines())
     for record in records:
         assert record["kind"] == "baseline" and record["status"] == "ok"
-        assert record["metrics"]["test"] == pytest.approx(task.baselines()[record["model"]])
-        assert record["cost"] is None and record["curves"] is None and record["seed"] == 2
+        expected = task.baselines()[record["model"]].metrics
+        assert record["metrics"]["test"] == pytest.approx(expected)
+        assert record["cost"] == {"fit_seconds": None} and record["curves"] is None
+        assert record["seed"] == 2 and record["seed_dependent"] is True
+
+
+def test_bounds_are_recorded_apart_from_baselines():
+    # sines: the noise-free signal is a bound (its MSE is the noise variance), not a baseline
+    cfg = tiny_config("task=sines", "task.options.length=12")
+    by_name = {r["model"]: r for r in baseline_records(cfg)}
+    assert by_name["optimal"]["kind"] == "bound" and by_name["persistence"]["kind"] == "baseline"
+    assert by_name["optimal"]["details"]["noise_variance"] == pytest.approx(0.01)

@@ -172,9 +172,20 @@ def test_score_has_primary_metric_and_baselines_share_keys(task_pair):
     assert task.score(prediction, "test") == scores
     baselines = task.baselines()
     assert baselines, "every task has at least one classical baseline"
-    for name, result in baselines.items():
-        assert set(result) == set(scores), name
-        assert all(np.isfinite(v) for v in result.values()), name
+    assert all(row.kind == "baseline" for row in baselines.values())
+    assert all(row.kind in ("bound", "reference") for row in task.bounds().values())
+    assert not set(baselines) & set(task.bounds()), "a row is a baseline or a bound, not both"
+    for name, row in {**baselines, **task.bounds()}.items():
+        json.dumps(row.details, allow_nan=False)
+        if row.status == "skipped":
+            assert row.reason and not row.metrics, name
+            continue
+        # a reference rate (a compressor's) has no predictions, so only its rate metrics
+        expected = set(scores) if row.kind != "reference" else set(row.metrics)
+        assert set(row.metrics) == expected and task.metric in row.metrics, name
+        assert all(np.isfinite(v) for v in row.metrics.values()), name
+        if not task.seed_changes_data:
+            assert not row.seed_dependent, name
 
 
 def test_describe_is_json(task_pair):

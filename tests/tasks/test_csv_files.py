@@ -52,7 +52,7 @@ def test_forecast_orders_by_time_and_matches_numpy_persistence(pump_csv):
     test = facts["parts"]["test"]
     starts = np.arange(test["first_row"], test["end_row"] - 10 - 3 + 1)
     last = starts + 9
-    scores = task.baselines()["persistence"]
+    scores = task.baselines()["persistence"].metrics
     # Independent numpy persistence on the time-ordered column.
     assert scores["mse_h1"] == pytest.approx(np.mean((flow[last + 1] - flow[last]) ** 2), rel=1e-5)
     assert scores["mse_h3"] == pytest.approx(np.mean((flow[last + 3] - flow[last]) ** 2), rel=1e-5)
@@ -106,7 +106,7 @@ def test_classification_logistic_matches_sklearn(tmp_path):
     model = LogisticRegression(max_iter=5000).fit(train.x.reshape(len(train), -1).numpy(),
                                                   train.y[:, -1].numpy())
     expected = model.score(test.x.reshape(len(test), -1).numpy(), test.y[:, -1].numpy())
-    assert abs(task.baselines()["logistic"]["accuracy"] - expected) <= 0.01
+    assert abs(task.baselines()["logistic"].metrics["accuracy"] - expected) <= 0.01
 
 
 def test_logistic_handles_test_sequences_longer_than_any_training_one(tmp_path):
@@ -121,7 +121,7 @@ def test_logistic_handles_test_sequences_longer_than_any_training_one(tmp_path):
             break
     else:
         pytest.fail("no seed put the longest sequence in the test part")
-    assert 0 <= task.baselines()["logistic"]["accuracy"] <= 1
+    assert 0 <= task.baselines()["logistic"].metrics["accuracy"] <= 1
 
 
 HEADER = "minute,pressure_bar,flow_lpm\n"

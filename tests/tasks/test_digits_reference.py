@@ -37,7 +37,7 @@ def test_logistic_baseline_within_a_point_of_sklearn(digits):
     reference = LogisticRegression(max_iter=5000).fit(digits.data[train] / 16,
                                                       digits.target[train])
     expected = reference.score(digits.data[test] / 16, digits.target[test])
-    assert abs(task.baselines()["logistic"]["accuracy"] - expected) <= 0.01
+    assert abs(task.baselines()["logistic"].metrics["accuracy"] - expected) <= 0.01
     assert expected > 0.9  # sanity: a linear model separates these digits well
 
 

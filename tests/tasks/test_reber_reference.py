@@ -71,10 +71,10 @@ def test_optimal_loss_matches_automaton(task):
         costs += [math.log(n) for n in choices[1:]]  # the first symbol is never predicted
     expected = sum(costs) / len(costs)
     assert task.optimal_cross_entropy("test") == pytest.approx(expected, rel=1e-12)
-    optimal = task.baselines()["optimal"]
+    optimal = task.bounds()["optimal"].metrics
     assert optimal["cross_entropy"] == pytest.approx(expected, rel=1e-9)
     assert optimal["bits_per_char"] == pytest.approx(expected / math.log(2), rel=1e-9)
-    assert task.baselines()["bigram"]["cross_entropy"] > expected
+    assert task.baselines()["bigram"].metrics["cross_entropy"] > expected
 
 
 def test_variable_lengths_and_long_dependency(task):
@@ -106,4 +106,4 @@ def test_bigram_matches_counted_transition_frequencies(task):
     picked = [log_probs[c, f] for x, y, n in zip(test.x, test.y, test.lengths, strict=True)
               for c, f in zip(x[:n].argmax(-1), y[:n], strict=True)]
     expected = -float(torch.stack(picked).mean())
-    assert task.baselines()["bigram"]["cross_entropy"] == pytest.approx(expected, rel=1e-9)
+    assert task.baselines()["bigram"].metrics["cross_entropy"] == pytest.approx(expected, rel=1e-9)

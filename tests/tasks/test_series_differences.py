@@ -62,7 +62,7 @@ def test_zero_change_scores_the_numpy_persistence_error(name, window, horizons):
     for i, h in enumerate(horizons if len(horizons) > 1 else []):
         assert scores[f"mse_h{h}"] == pytest.approx(np.mean(errors[:, i] ** 2), rel=1e-6)
     # The persistence baseline (built in data units) is the same forecast, so the same scores.
-    persistence = task.baselines()["persistence"]
+    persistence = task.baselines()["persistence"].metrics
     assert persistence.keys() == scores.keys()
     for key, value in persistence.items():
         assert value == pytest.approx(scores[key], rel=1e-6), key
@@ -113,10 +113,10 @@ def test_baselines_are_unchanged_in_data_units():
     series, _ = raw_series("sunspots")
     last = forecast_rows(changes, "test", 20, [1], np.zeros(len(series), dtype=bool))
     assert changes.ar_order() == levels.ar_order()
-    for name, scores in changes.baselines().items():
-        assert np.isfinite(scores["mse"]), name
+    for name, row in changes.baselines().items():
+        assert np.isfinite(row.metrics["mse"]), name
     persistence = np.mean((series[last + 1] - series[last]) ** 2)
-    assert changes.baselines()["persistence"]["mse"] == pytest.approx(persistence, rel=1e-6)
+    assert changes.baselines()["persistence"].metrics["mse"] == pytest.approx(persistence, rel=1e-6)
 
 
 class PerturbedCo2(Co2Task):

@@ -36,7 +36,7 @@ def test_sunspots_ar_equals_direct_statsmodels_fit(order):
     predicted = statsmodels_one_step(series, task.describe()["parts"]["train"]["end_row"], order)
     steps = forecast_steps(task, "test", 20)
     expected = np.mean((series[steps] - predicted[steps]) ** 2)
-    assert task.baselines()["ar"]["mse"] == pytest.approx(expected, rel=1e-5)
+    assert task.baselines()["ar"].metrics["mse"] == pytest.approx(expected, rel=1e-5)
 
 
 def test_sunspots_persistence_equals_numpy():
@@ -45,7 +45,7 @@ def test_sunspots_persistence_equals_numpy():
     series = raw_sunspots()
     steps = forecast_steps(task, "test", 20)
     errors = series[steps] - series[steps - 1]
-    persistence = task.baselines()["persistence"]
+    persistence = task.baselines()["persistence"].metrics
     assert persistence["mse"] == pytest.approx(np.mean(errors**2), rel=1e-5)
     assert persistence["mae"] == pytest.approx(np.mean(np.abs(errors)), rel=1e-5)
 
@@ -96,7 +96,7 @@ def test_elnino_seasonal_naive_equals_numpy():
     for h in (1, 3):
         steps = forecast_steps(task, "test", 24, horizon=3) - 3 + h
         errors.append(np.mean((series[steps] - series[steps - 12]) ** 2))
-    scores = task.baselines()["seasonal-naive"]
+    scores = task.baselines()["seasonal-naive"].metrics
     assert scores["mse_h1"] == pytest.approx(errors[0], rel=1e-5)
     assert scores["mse_h3"] == pytest.approx(errors[1], rel=1e-5)
     assert scores["mse"] == pytest.approx(np.mean(errors), rel=1e-5)

@@ -54,7 +54,7 @@ def test_text_bigram_matches_numpy(notes):
     probs = counts / counts.sum(1, keepdims=True)
     test = ids[bounds["test"]["first_char"] :]
     expected = -np.mean(np.log(probs[test[:-1], test[1:]])) / math.log(2)
-    assert task.baselines()["bigram"]["bits_per_char"] == pytest.approx(expected, rel=1e-9)
+    assert task.baselines()["bigram"].metrics["bits_per_char"] == pytest.approx(expected, rel=1e-9)
 
 
 def test_fleet_log_is_seeded_and_well_formed():
@@ -71,8 +71,8 @@ def test_fleet_log_is_seeded_and_well_formed():
     assert closed and len(closed) == len(set(closed))
     # A ticket is closed on the machine that opened it.
     assert all(opened[ticket] == machine for ticket, machine in closed)
-    bigram = a.baselines()["bigram"]["bits_per_char"]
-    assert bigram < a.baselines()["unigram"]["bits_per_char"] < math.log2(len(a.alphabet))
+    bigram = a.baselines()["bigram"].metrics["bits_per_char"]
+    assert bigram < a.baselines()["unigram"].metrics["bits_per_char"] < math.log2(len(a.alphabet))
 
 
 @pytest.mark.parametrize("content, message", [

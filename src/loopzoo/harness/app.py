@@ -90,7 +90,7 @@ def ensure_baselines(cfg: DictConfig) -> int:
         written = []
         for body in baseline_records(cfg):
             rid = runids.baseline_run_id(cfg, body["model"])
-            record = records.make_record(body, run_id=rid, kind="baseline", config=config)
+            record = records.make_record(body, run_id=rid, kind=body["kind"], config=config)
             records.write_record(out, record)
             written.append(rid)
         # The marker comes last: a kill before it only means the baselines are redone.

@@ -7,11 +7,13 @@ Layout of an output directory ``DIR``::
     DIR/runs/<run_id>/            the run's own files (Lightning logs, artifact)
     DIR/records-damaged/          unreadable records set aside by a rerun (never deleted)
 
-A record holds ``schema``, ``run_id``, ``kind`` ("model" | "baseline"), ``config`` (the resolved
-config) and the body returned by ``loopzoo.engine.training.train_and_evaluate``: ``status``
-("ok" | "diverged" | "failed"), ``reason``, ``diverged_at_step``, ``model``, ``task``, ``suite``,
-``seed``, ``params``, ``budget``, ``sizes``, ``versions``, ``primary``, ``metrics``, ``lr``,
-``curves``, ``cost``, ``gradient_reach``, ``feedback``, ``started``, ``finished``.
+A record holds ``schema``, ``run_id``, ``kind`` ("model" | "baseline" | "bound" | "reference"),
+``config`` (the resolved config) and the body returned by
+``loopzoo.engine.training.train_and_evaluate`` (or ``baseline_records``, which adds
+``seed_dependent`` and ``details``): ``status`` ("ok" | "diverged" | "failed" | "skipped"),
+``reason``, ``diverged_at_step``, ``model``, ``task``, ``suite``, ``seed``, ``params``,
+``budget``, ``sizes``, ``versions``, ``primary``, ``metrics``, ``lr``, ``curves``, ``cost``,
+``gradient_reach``, ``feedback``, ``started``, ``finished``.
 """
 
 from __future__ import annotations
@@ -29,6 +31,7 @@ from loopzoo._io import atomic_write_json, json_safe
 from loopzoo.engine.provenance import utc_now, versions
 from loopzoo.harness.errors import OutDirError
 from loopzoo.harness.shipped import CONFIG_MODULE
+from loopzoo.tasks._rows import KINDS as ROW_KINDS
 
 __all__ = [
     "SCHEMA",
@@ -37,6 +40,7 @@ __all__ = [
     "DAMAGED_DIR",
     "DamagedRecord",
     "STATUSES",
+    "RECORD_KINDS",
     "KEPT_ON_RERUN",
     "BODY_FIELDS",
     "records_dir",
@@ -59,7 +63,11 @@ SCHEMA = "loopzoo.run/1"
 CONFIG_VERSION = 2
 MANIFEST = "loopzoo-out.json"
 DAMAGED_DIR = "records-damaged"
-STATUSES = ("ok", "diverged", "failed")
+# "skipped": a classical row the data cannot support (too short for its season, constant), with
+# the reason.
+STATUSES = ("ok", "diverged", "failed", "skipped")
+# "model": a trained topology; the others are the task's comparison rows (loopzoo.tasks._rows).
+RECORD_KINDS = ("model", *ROW_KINDS)
 # A rerun keeps ok and diverged records (divergence is a deterministic outcome of config and
 # seed, so rerunning would only repeat it) and redoes failed ones (a failure may be transient).
 KEPT_ON_RERUN = ("ok", "diverged")
@@ -93,8 +101,8 @@ def make_record(
         raise ValueError(
             f"record {run_id}: status {status!r} is not one of {', '.join(STATUSES)}"
         )
-    if kind not in ("model", "baseline"):
-        raise ValueError(f"record {run_id}: kind {kind!r} is not 'model' or 'baseline'")
+    if kind not in RECORD_KINDS:
+        raise ValueError(f"record {run_id}: kind {kind!r} is not one of {', '.join(RECORD_KINDS)}")
     record = {field: body.get(field) for field in BODY_FIELDS}
     record.update({k: v for k, v in body.items() if k not in record})
     record.update({"schema": SCHEMA, "run_id": run_id, "kind": kind, "config": config})

@@ -10,6 +10,7 @@ from typing import Any
 from omegaconf import DictConfig, OmegaConf
 
 from loopzoo.harness.errors import ConfigError
+from loopzoo.tasks import TASKS
 
 __all__ = ["IDENTITY_EXCLUDED", "data_files", "identity", "run_id", "baseline_run_id",
            "baseline_group"]
@@ -32,7 +33,6 @@ def data_files(cfg: DictConfig | dict[str, Any]) -> list[dict[str, Any]]:
 
     A file that is missing or unreadable is a ``ConfigError`` naming the option.
     """
-    from loopzoo.tasks import TASKS
     from loopzoo.tasks._files import fingerprint
 
     task = cfg.get("task")
@@ -94,10 +94,13 @@ def run_id(cfg: DictConfig | dict[str, Any]) -> str:
 
 
 def baseline_group(cfg: DictConfig | dict[str, Any]) -> str:
-    """Hash of what a task's baselines depend on: the task config, its files, the seed and the
-    suite."""
+    """Hash of what a task's comparison rows depend on: the task config, its files, the suite
+    and the seed; the seed only for tasks whose data change with it (``seed_changes_data``), so
+    rows of a fixed record are computed once and carry the seed of the run that computed them."""
     content = identity(cfg)
-    group = {"task": content["task"], "seed": content["seed"], "suite": content.get("suite")}
+    group = {"task": content["task"], "suite": content.get("suite")}
+    if TASKS.get(content["task"]["name"]).seed_changes_data:
+        group["seed"] = content["seed"]
     if "data" in content:
         group["data"] = content["data"]
     return _digest(group)

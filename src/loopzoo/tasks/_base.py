@@ -15,6 +15,7 @@ import numpy as np
 import torch
 
 from loopzoo.tasks._options import build_options, check_choice, check_seed
+from loopzoo.tasks._rows import ComparisonRow
 from loopzoo.tasks._scaling import Standardizer
 from loopzoo.tasks._scoring import classification_metrics, regression_metrics
 
@@ -129,11 +130,11 @@ def _jsonable(value: Any) -> Any:
 
 
 class Task(ABC):
-    """A dataset with fixed train / val / test splits, its metrics and its classical baselines.
+    """A dataset with fixed train / val / test splits, its metrics, classical rows and bounds.
 
     Subclasses set the class attributes, an ``Options`` dataclass (validated in its
     ``__post_init__``), ``input_size`` / ``output_size`` in ``__init__``, and implement
-    ``_make_splits``, ``_metrics`` and ``baselines``.
+    ``_make_splits``, ``_metrics`` and ``baselines`` (and ``bounds`` where one is known).
 
     Example:
         >>> task = loopzoo.tasks.create("adding", seed=0, length=50)
@@ -189,8 +190,14 @@ class Task(ABC):
         return self._metrics(values, part)
 
     @abstractmethod
-    def baselines(self) -> dict[str, dict[str, float]]:
-        """Classical baselines, each scored by ``score`` on the test split."""
+    def baselines(self) -> dict[str, ComparisonRow]:
+        """Classical rows one could ship instead of a topology, each scored by ``score`` on the
+        test split (or skipped with the reason)."""
+
+    def bounds(self) -> dict[str, ComparisonRow]:
+        """Lines no model can be shipped as: exact optima and noise floors (kind "bound"),
+        reference rates such as a compressor's (kind "reference"). None by default."""
+        return {}
 
     def observed_after(self) -> tuple[int | None, ...]:
         """When each target becomes observable, one entry per target: per output channel for

@@ -7,6 +7,7 @@ from collections.abc import Sequence
 import numpy as np
 
 from loopzoo.tasks._base import ClassificationTask, Split, make_split
+from loopzoo.tasks._rows import ComparisonRow
 from loopzoo.tasks._scoring import IMPOSSIBLE_LOGIT
 
 __all__ = ["SequenceClassTask", "encode_sequences", "stratified_parts"]
@@ -83,7 +84,7 @@ class SequenceClassTask(ClassificationTask):
         logits[split.mask.numpy()] = log_probs
         return logits
 
-    def baselines(self) -> dict[str, dict[str, float]]:
+    def baselines(self) -> dict[str, ComparisonRow]:
         from sklearn.linear_model import LogisticRegression
         from threadpoolctl import threadpool_limits
 
@@ -100,5 +101,5 @@ class SequenceClassTask(ClassificationTask):
         log_probs[:, model.classes_] = model.predict_log_proba(test_x)
         counts = np.bincount(train_labels, minlength=self.output_size) + 1.0
         prior = np.broadcast_to(np.log(counts / counts.sum()), (len(test), self.output_size))
-        return {"logistic": self.score(self._at_last_step(test, log_probs), test),
-                "prior": self.score(self._at_last_step(test, prior), test)}
+        return {"logistic": ComparisonRow(self.score(self._at_last_step(test, log_probs), test)),
+                "prior": ComparisonRow(self.score(self._at_last_step(test, prior), test))}

@@ -20,6 +20,7 @@ from loopzoo.tasks._base import (
     shortest_record,
 )
 from loopzoo.tasks._options import check_fraction, check_int, check_int_list
+from loopzoo.tasks._rows import ComparisonRow
 from loopzoo.tasks._scaling import Standardizer
 from loopzoo.tasks._scoring import regression_metrics
 
@@ -232,7 +233,7 @@ class SeriesTask(RegressionTask):
         prediction[:, -1] = forecast
         return prediction
 
-    def baselines(self) -> dict[str, dict[str, float]]:
+    def baselines(self) -> dict[str, ComparisonRow]:
         context = self._targets_in_window("test")
         repeat = len(self.horizons)
         results = {"persistence": np.repeat(context[:, -1, :], repeat, axis=-1)}
@@ -244,7 +245,8 @@ class SeriesTask(RegressionTask):
             results["seasonal-naive"] = np.stack(columns, axis=-1)
         results["ar"] = self._ar_forecast(context, self.ar_order())
         test = self.split("test")
-        return {name: self.score_in_data_units(self._full_prediction(forecast), test)
+        return {name: ComparisonRow(self.score_in_data_units(self._full_prediction(forecast), test),
+                                    seed_dependent=False)
                 for name, forecast in results.items()}
 
     def _ar_params(self, order: int) -> list[np.ndarray]:

@@ -1,7 +1,10 @@
-"""Next-symbol tasks: symbol strings -> one-hot inputs and next-symbol targets; n-gram baselines."""
+"""Next-symbol tasks: symbol strings -> one-hot inputs and next-symbol targets; n-gram baselines
+and a compressor's rate."""
 
 from __future__ import annotations
 
+import lzma
+import math
 from abc import abstractmethod
 from collections.abc import Sequence
 from typing import Any, ClassVar
@@ -9,8 +12,12 @@ from typing import Any, ClassVar
 import numpy as np
 
 from loopzoo.tasks._base import SPLITS, ClassificationTask, Split, make_split, one_hot
+from loopzoo.tasks._ngram import METHODS, NGramModel, contexts
+from loopzoo.tasks._rows import ComparisonRow, Stopwatch
 
-__all__ = ["NextSymbolTask", "encode_next_symbol"]
+__all__ = ["NGRAM_ORDERS", "NextSymbolTask", "encode_next_symbol"]
+
+NGRAM_ORDERS = (2, 3, 4, 5)  # orders the "ngram" row chooses from on the validation part
 
 
 def encode_next_symbol(sequences: Sequence[np.ndarray], classes: int,
@@ -34,8 +41,11 @@ class NextSymbolTask(ClassificationTask):
     """Predict the next symbol of each string, scored in bits per character.
 
     Subclasses set ``alphabet`` (one entry per class) and implement ``_symbol_strings``.
-    Baselines "unigram" and "bigram": symbol frequencies of the training targets, without and
-    with the current symbol as context, add-one (Laplace) smoothed so unseen pairs stay finite.
+    Baselines, all fitted on the training part and reading the same strings as the topologies:
+    "unigram" and "bigram" (symbol frequencies of the training targets, without and with the
+    current symbol as context, add-one (Laplace) smoothed) and "ngram" (``NGramModel``: method
+    and order 2-5 chosen by validation bits per character). Reference (``bounds``):
+    "compressor", lzma's rate on the test part given the training part as history.
     """
 
     next_symbol: ClassVar[bool] = True
@@ -67,7 +77,7 @@ class NextSymbolTask(ClassificationTask):
         return {name: encode_next_symbol(strings[name][0], len(self.alphabet), strings[name][1])
                 for name in SPLITS}
 
-    def baselines(self) -> dict[str, dict[str, float]]:
+    def baselines(self) -> dict[str, ComparisonRow]:
         train, test = self.split("train"), self.split("test")
         classes = len(self.alphabet)
         mask = train.mask.numpy()
@@ -78,5 +88,71 @@ class NextSymbolTask(ClassificationTask):
         unigram_logits = np.broadcast_to(np.log(unigram / unigram.sum()),
                                          (*test.mask.shape, classes))
         bigram_logits = np.log(pairs / pairs.sum(axis=1, keepdims=True))[test.x.argmax(-1).numpy()]
-        return {"unigram": self.score(unigram_logits, test),
-                "bigram": self.score(bigram_logits, test)}
+        varies = self.seed_changes_data
+        return {"unigram": ComparisonRow(self.score(unigram_logits, test), seed_dependent=varies),
+                "bigram": ComparisonRow(self.score(bigram_logits, test), seed_dependent=varies),
+                "ngram": self._ngram_row()}
+
+    def _events(self, name: str) -> tuple[np.ndarray, np.ndarray]:
+        """Contexts (M, max order - 1) and next symbols (M,) of a split's scored positions."""
+        part = self.split(name)
+        mask = part.mask.numpy()
+        width = max(NGRAM_ORDERS) - 1
+        return (contexts(part.x.argmax(-1).numpy(), mask, width, start=len(self.alphabet)),
+                part.y.numpy()[mask])
+
+    def _ngram_row(self) -> ComparisonRow:
+        watch = Stopwatch()
+        with watch.running():
+            train_context, train_targets = self._events("train")
+            val_context, val_targets = self._events("val")
+            val_bits, models = {}, {}
+            for method in METHODS:
+                for order in NGRAM_ORDERS:
+                    model = NGramModel(len(self.alphabet), order, method).fit(train_context,
+                                                                              train_targets)
+                    picked = model.log_probs(val_context)[np.arange(len(val_targets)),
+                                                          val_targets]
+                    key = f"{method}/{order}"
+                    val_bits[key] = float(-picked.mean() / math.log(2))
+                    models[key] = model
+            best = min(val_bits, key=val_bits.get)
+        model = models[best]
+        test = self.split("test")
+        logits = np.zeros((*test.mask.shape, len(self.alphabet)))
+        logits[test.mask.numpy()] = model.log_probs(self._events("test")[0])
+        details = {"method": model.method, "order": model.order,
+                   "discounts": [level.discounts.tolist() for level in model.levels],
+                   "chosen_on": "validation bits per character", "val_bits_per_char": val_bits}
+        return ComparisonRow(self.score(logits, test), details=details,
+                             fit_seconds=watch.seconds, seed_dependent=self.seed_changes_data)
+
+    def _stream(self, name: str) -> str:
+        """A split's symbols as one string (the strings one after another)."""
+        part = self.split(name)
+        inputs, targets = part.x.argmax(-1).numpy(), part.y.numpy()
+        symbols = []
+        for row, length in enumerate(part.lengths.tolist()):
+            symbols += [self.alphabet[i] for i in inputs[row, :length]]
+            symbols.append(self.alphabet[targets[row, length - 1]])
+        return "".join(symbols)
+
+    def bounds(self) -> dict[str, ComparisonRow]:
+        """"compressor": 8 x (lzma size of train + test - lzma size of train) / scored test
+        positions, a general-purpose compressor's rate given the training part as history
+        (a reference line, not a model: it is never ranked or recommended)."""
+        history = self._stream("train").encode()
+        following = self._stream("test").encode()
+        watch = Stopwatch()
+        with watch.running():
+            extra = _compressed_size(history + following) - _compressed_size(history)
+        bits = 8 * extra / int(self.split("test").mask.sum())
+        return {"compressor": ComparisonRow(
+            {"bits_per_char": bits, "cross_entropy": bits * math.log(2)}, kind="reference",
+            details={"compressor": "lzma (xz), preset 9 extreme", "history": "the training part",
+                     "test_bytes": len(following), "extra_compressed_bytes": extra},
+            fit_seconds=watch.seconds, seed_dependent=self.seed_changes_data)}
+
+
+def _compressed_size(data: bytes) -> int:
+    return len(lzma.compress(data, preset=9 | lzma.PRESET_EXTREME))

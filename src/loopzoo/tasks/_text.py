@@ -77,6 +77,10 @@ class CharacterTask(NextSymbolTask):
         """The alphabet; the text is read in chunks of ``length`` characters from the zero state."""
         return {**super().preprocessing(), "chunk": self.options.length}
 
+    def _stream(self, name: str) -> str:
+        start, end = self._bounds[name]
+        return self.text[start:end]
+
     def _facts(self) -> dict[str, Any]:
         return {"source": self.source, "characters": len(self.text),
                 "alphabet_size": len(self.alphabet),

@@ -22,6 +22,7 @@ from loopzoo.tasks._base import (
 )
 from loopzoo.tasks._catalog import TASKS
 from loopzoo.tasks._options import SplitSizes, check_int
+from loopzoo.tasks._rows import ComparisonRow
 from loopzoo.tasks._scaling import Standardizer
 from loopzoo.tasks._scoring import IMPOSSIBLE_LOGIT
 
@@ -85,9 +86,10 @@ class AddingTask(RegressionTask):
         return make_split(np.stack([values, markers], axis=-1), y, mask,
                           np.full(count, steps), span, classes=False)
 
-    def baselines(self) -> dict[str, dict[str, float]]:
+    def baselines(self) -> dict[str, ComparisonRow]:
         test = self.split("test")
-        return {"memoryless": self.score_in_data_units(np.ones(tuple(test.y.shape)), test)}
+        return {"memoryless": ComparisonRow(
+            self.score_in_data_units(np.ones(tuple(test.y.shape)), test))}
 
 
 # Copy-task alphabet in Arjovsky et al.'s layout: 0 blank, 1..8 data symbols, 9 delimiter.
@@ -147,10 +149,10 @@ class CopyTask(ClassificationTask):
         """The published memoryless figure 10 ln 8 / (T + 20) for this task's length."""
         return RECALLED * math.log(DATA_SYMBOLS) / (self.options.length + 2 * RECALLED)
 
-    def baselines(self) -> dict[str, dict[str, float]]:
+    def baselines(self) -> dict[str, ComparisonRow]:
         test = self.split("test")
         steps = test.mask.shape[1]
         logits = np.full((len(test), steps, self.output_size), IMPOSSIBLE_LOGIT)
         logits[:, : steps - RECALLED, BLANK] = 0.0
         logits[:, steps - RECALLED :, 1 : DATA_SYMBOLS + 1] = 0.0
-        return {"memoryless": self.score(logits, test)}
+        return {"memoryless": ComparisonRow(self.score(logits, test))}

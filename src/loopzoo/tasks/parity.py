@@ -15,6 +15,7 @@ from loopzoo.tasks._base import (
 )
 from loopzoo.tasks._catalog import TASKS
 from loopzoo.tasks._options import SplitSizes, check_int
+from loopzoo.tasks._rows import ComparisonRow
 from loopzoo.tasks._scoring import IMPOSSIBLE_LOGIT
 
 __all__ = ["ParityTask"]
@@ -63,9 +64,9 @@ class ParityTask(ClassificationTask):
                                       np.full(count, steps), spans[name], classes=True)
         return splits
 
-    def baselines(self) -> dict[str, dict[str, float]]:
+    def baselines(self) -> dict[str, ComparisonRow]:
         test = self.split("test")
         logits = np.zeros((*test.mask.shape, 2))
         first_bit = test.x[:, 0, 0].numpy().astype(np.int64)
         logits[np.arange(len(test)), 0, 1 - first_bit] = IMPOSSIBLE_LOGIT
-        return {"memoryless": self.score(logits, test)}
+        return {"memoryless": ComparisonRow(self.score(logits, test))}

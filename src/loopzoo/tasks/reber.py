@@ -15,6 +15,7 @@ import numpy as np
 from loopzoo.tasks._base import SPLITS, sequence_spans, split_generators
 from loopzoo.tasks._catalog import TASKS
 from loopzoo.tasks._options import SplitSizes
+from loopzoo.tasks._rows import ComparisonRow
 from loopzoo.tasks._scoring import IMPOSSIBLE_LOGIT
 from loopzoo.tasks._symbols import NextSymbolTask
 
@@ -59,9 +60,10 @@ class ReberTask(NextSymbolTask):
     """Next-symbol prediction on (embedded) Reber strings of variable length.
 
     x[:, t] = one_hot(s_t) over B T P S X V E; y[:, t] = s_{t+1}; lengths = len(s) - 1.
-    Baselines "unigram", "bigram" and "optimal": the automaton's exact next-symbol distribution
-    (1/2 on each of two allowed symbols at a branching step, 1 on a forced one), whose mean loss
-    per predicted symbol is ``optimal_cross_entropy``.
+    Baselines as for every next-symbol task; bounds: "optimal", the automaton's exact
+    next-symbol distribution (1/2 on each of two allowed symbols at a branching step, 1 on a
+    forced one), whose mean loss per predicted symbol is ``optimal_cross_entropy``, and the
+    compressor's rate.
 
     Example:
         >>> task = loopzoo.tasks.create("reber", seed=0)
@@ -104,13 +106,15 @@ class ReberTask(NextSymbolTask):
                  for string in self._allowed[split] for allowed in string[1:]]
         return float(np.mean(costs))
 
-    def baselines(self) -> dict[str, dict[str, float]]:
+    def bounds(self) -> dict[str, ComparisonRow]:
         test = self.split("test")
         logits = np.full((*test.mask.shape, len(ALPHABET)), IMPOSSIBLE_LOGIT)
         for row, string in enumerate(self._allowed["test"]):
             for step, allowed in enumerate(string[1:]):
                 logits[row, step, [ALPHABET.index(s) for s in allowed]] = 0.0
-        return {**super().baselines(), "optimal": self.score(logits, test)}
+        optimal = ComparisonRow(self.score(logits, test), kind="bound",
+                                details={"what": "the grammar's exact next-symbol distribution"})
+        return {**super().bounds(), "optimal": optimal}
 
     def _facts(self) -> dict[str, object]:
         return {"optimal_cross_entropy": {name: self.optimal_cross_entropy(name)

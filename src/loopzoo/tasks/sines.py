@@ -14,6 +14,7 @@ from loopzoo.tasks._options import (
     check_int_list,
     check_positive_float,
 )
+from loopzoo.tasks._rows import ComparisonRow
 from loopzoo.tasks._scaling import Standardizer
 
 __all__ = ["SinesTask"]
@@ -56,12 +57,12 @@ class SinesTask(RegressionTask):
     From v_0..v_t predict v_{t+h} for each horizon h, where
     v_t = sum_k a_k sin(2 pi t / P_k + phi_k) + eps_t,  phi_k ~ U[0, 2 pi) per sequence,
     eps_t ~ N(0, noise^2). Every step is scored. Shapes: x (N, T, 1), y (N, T, len(horizons)).
-    Baselines "persistence" (v_t for every horizon) and "optimal": the noise-free signal, whose
+    Baseline "persistence" (v_t for every horizon); bound "optimal": the noise-free signal, whose
     expected MSE is the noise variance at every horizon (no predictor can know eps_{t+h}).
 
     Example:
         >>> task = loopzoo.tasks.create("sines", horizons=[1, 10], noise=0.2)
-        >>> task.baselines()["optimal"]["mse"]   # about 0.04
+        >>> task.bounds()["optimal"].metrics["mse"]   # about 0.04
     """
 
     name = "sines"
@@ -104,12 +105,18 @@ class SinesTask(RegressionTask):
         steps = self.options.length
         return np.stack([series[:, h : h + steps] for h in self.horizons], axis=-1)
 
-    def baselines(self) -> dict[str, dict[str, float]]:
+    def baselines(self) -> dict[str, ComparisonRow]:
         test = self.split("test")
         last = test.x[..., 0].numpy().astype(np.float64)
         persistence = np.repeat(last[..., None], len(self.horizons), axis=-1)
-        return {"persistence": self.score_in_data_units(persistence, test),
-                "optimal": self.score_in_data_units(self._ahead(self._clean["test"]), test)}
+        return {"persistence": ComparisonRow(self.score_in_data_units(persistence, test))}
+
+    def bounds(self) -> dict[str, ComparisonRow]:
+        test = self.split("test")
+        optimal = self.score_in_data_units(self._ahead(self._clean["test"]), test)
+        return {"optimal": ComparisonRow(optimal, kind="bound", details={
+            "what": "the noise-free signal; expected MSE = noise variance at every horizon",
+            "noise_variance": self.options.noise**2})}
 
     def _facts(self) -> dict[str, object]:
         return {"noise_variance": self.options.noise**2}
