@@ -41,6 +41,9 @@ class HiddenFeedback(RecurrentTopology):
     """
 
     option_specs = {"nonlinearity": NONLINEARITY}
+    # Nothing beyond the optimiser: the nonlinearity names the row (plain tanh or relu), so it
+    # is chosen by the user, not searched.
+    tunable = {}
 
     def __init__(self, **sizes_and_options: Any) -> None:
         super().__init__(**sizes_and_options)
