@@ -56,7 +56,7 @@ __all__ = [
 
 SCHEMA = "loopzoo.run/1"
 # Bumped whenever a config key changes meaning, so old output directories are refused.
-CONFIG_VERSION = 1
+CONFIG_VERSION = 2
 MANIFEST = "loopzoo-out.json"
 DAMAGED_DIR = "records-damaged"
 STATUSES = ("ok", "diverged", "failed")
@@ -66,7 +66,7 @@ KEPT_ON_RERUN = ("ok", "diverged")
 BODY_FIELDS = (
     "status", "reason", "diverged_at_step", "model", "task", "suite", "seed", "params", "budget",
     "sizes", "versions", "primary", "metrics", "lr", "curves", "cost", "gradient_reach",
-    "feedback", "started", "finished",
+    "feedback", "convergence", "tuning", "reproduce", "started", "finished",
 )
 
 

@@ -15,11 +15,11 @@ from typing import Any
 from omegaconf import DictConfig, OmegaConf, open_dict
 
 from loopzoo.harness.config import apply_per_task, compose_job, composer
+from loopzoo.harness.runids import IDENTITY_EXCLUDED
 
 __all__ = ["reproduce_overrides", "reproduce_command"]
 
 _PLAIN = re.compile(r"^[A-Za-z_][A-Za-z0-9_./-]*$")
-_NOT_COMPARED = ("out",)
 
 
 def _value(value: Any) -> str:
@@ -46,15 +46,17 @@ def _diff(base: Any, target: Any, prefix: str, out: list[str]) -> None:
     if isinstance(base, dict) and isinstance(target, dict) and target:
         for key, value in target.items():
             path = f"{prefix}{key}"
-            if path in _NOT_COMPARED:
+            if path in IDENTITY_EXCLUDED:
                 continue
             if key not in base:
                 out.append(f"+{path}={_value(value)}")
             else:
                 _diff(base[key], value, path + ".", out)
         for key in base:
-            if key not in target and f"{prefix}{key}" not in _NOT_COMPARED:
+            if key not in target and f"{prefix}{key}" not in IDENTITY_EXCLUDED:
                 out.append(f"~{prefix}{key}")
+        return
+    if prefix.rstrip(".") in IDENTITY_EXCLUDED:
         return
     if json.dumps(base, sort_keys=True) != json.dumps(target, sort_keys=True):
         out.append(f"{prefix.rstrip('.')}={_value(target)}")
@@ -78,7 +80,8 @@ def reproduce_overrides(cfg: DictConfig, *, out: str) -> list[str]:
     base.pop("per_task", None)
     changes: list[str] = []
     _diff(base, target, "", changes)
-    return [*head, *changes, f"out={out}"]
+    changes = [c for c in changes if not c.startswith("seed=")]
+    return [*head, f"seed={target['seed']}", *changes, f"out={out}"]
 
 
 def reproduce_command(cfg: DictConfig, *, out: str) -> str:

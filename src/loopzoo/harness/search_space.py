@@ -9,9 +9,11 @@ Where the ranges come from:
 
 An entry is ``{low, high}`` (integers when both are integers and the declared range, if any, is
 an integer range), ``{low, high, log: true}`` or ``{choices: [...]}``; ``hard: [low]`` marks an
-end that is a limit of the option itself (never reported as a bound worth widening). Everything is checked
-before any training: unknown names, empty or inverted ranges, log ranges reaching 0, and range
-ends the option itself would refuse, each naming the field and what is accepted.
+end that is a limit of the option itself (never reported as a bound worth widening).
+
+Everything is checked before any training: unknown names, empty or inverted ranges, log ranges
+reaching 0, and range ends the option itself would refuse, each naming the field and what is
+accepted.
 """
 
 from __future__ import annotations
@@ -120,7 +122,7 @@ def _check_against_option(field: str, name: str, search: SearchRange, cfg: dict[
             raise ConfigError(f"{field} holds {refused[0]!r}; accepted: {accepted}")
         return
     if name.startswith("feedback."):
-        from loopzoo.harness.schedules import TeacherForcingPlan
+        from loopzoo.engine.schedules import TeacherForcingPlan
 
         base = dict(cfg["model"].get("feedback") or {})
         for value in _endpoints(search):

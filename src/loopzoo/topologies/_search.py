@@ -56,9 +56,9 @@ class RealRange:
         _check_common(self.hard, self.only_if)
 
     def describe(self) -> dict[str, Any]:
-        """``{"low", "high", "log"}`` (plus ``only_if``) for a record."""
+        """``{"low", "high", "log"}`` (plus ``hard``, ``only_if``) for a record."""
         described: dict[str, Any] = {"low": self.low, "high": self.high, "log": self.log}
-        return _with_condition(described, self.only_if)
+        return _with_condition(described, self.hard, self.only_if)
 
     def at_edge(self, value: Any) -> bool:
         """True when ``value`` lies within ``EDGE_SHARE`` of the range of a soft edge."""
@@ -82,9 +82,9 @@ class IntegerRange:
         _check_common(self.hard, self.only_if)
 
     def describe(self) -> dict[str, Any]:
-        """``{"low", "high", "log": False, "integer": True}`` (plus ``only_if``) for a record."""
+        """``{"low", "high", "log": False, "integer": True}`` (plus ``hard``, ``only_if``)."""
         described = {"low": self.low, "high": self.high, "log": False, "integer": True}
-        return _with_condition(described, self.only_if)
+        return _with_condition(described, self.hard, self.only_if)
 
     def at_edge(self, value: Any) -> bool:
         """True when ``value`` equals a soft edge."""
@@ -104,7 +104,7 @@ class Choices:
 
     def describe(self) -> dict[str, Any]:
         """``{"choices": [...]}`` (plus ``only_if``) for a record."""
-        return _with_condition({"choices": list(self.choices)}, self.only_if)
+        return _with_condition({"choices": list(self.choices)}, (), self.only_if)
 
     def at_edge(self, value: Any) -> bool:
         """Unordered choices have no edges."""
@@ -114,8 +114,10 @@ class Choices:
 SearchRange = RealRange | IntegerRange | Choices
 
 
-def _with_condition(described: dict[str, Any], only_if: Mapping[str, tuple[Any, ...]]
-                    ) -> dict[str, Any]:
+def _with_condition(described: dict[str, Any], hard: tuple[str, ...],
+                    only_if: Mapping[str, tuple[Any, ...]]) -> dict[str, Any]:
+    if hard:
+        described["hard"] = list(hard)
     if only_if:
         described["only_if"] = {name: list(values) for name, values in only_if.items()}
     return described
