@@ -298,6 +298,8 @@ def ensure_trials(cfg: DictConfig, tuning: TuningSettings, run_trial: TrialRunne
             if finished >= tuning.trials:
                 return study
             if finished + running < tuning.trials:
+                # Seeded by the trial count: every study draws the same startup values (common
+                # random numbers across topologies), and a restart never replays earlier draws.
                 study.sampler = _sampler(tuning, seed=len(study.get_trials(deepcopy=False)))
                 trial = study.ask()
                 lock_path = _trial_lock(out, tuning.study, trial.number)
@@ -305,17 +307,20 @@ def ensure_trials(cfg: DictConfig, tuning: TuningSettings, run_trial: TrialRunne
         if trial is None:
             time.sleep(_WAIT_SECONDS)  # other jobs are running the last trials
             continue
+        told = False
         try:
             outcome = _run(trial, cfg, data, tuning, run_trial, out)
-        except BaseException:
-            study.tell(trial, state=TrialState.FAIL)
-            raise
+            # Told while its lock is still held: a trial whose lock is free and that is still
+            # running would be taken by another job for the trial of a dead process.
+            if outcome.value is None:
+                study.tell(trial, state=TrialState.PRUNED)
+            else:
+                study.tell(trial, outcome.value)
+            told = True
         finally:
+            if not told:
+                study.tell(trial, state=TrialState.FAIL)
             os.close(lock_fd)
-        if outcome.value is None:
-            study.tell(trial, state=TrialState.PRUNED)
-        else:
-            study.tell(trial, outcome.value)
         if on_trial is not None:
             on_trial(trial.number, outcome)
 
