@@ -37,7 +37,7 @@ SCRIPT = textwrap.dedent(
             "trainer=ddp", "task.options.length=12", "task.options.train_size=256",
             "task.options.val_size=32", "task.options.test_size=32", "task.batch_size=32",
             "task.budget=400", "trainer.max_steps=40", "protocol.val_every=10",
-            "protocol.lr_grid=null", "trainer.enable_progress_bar=false", *sys.argv[2:],
+            "protocol.trials=null", "trainer.enable_progress_bar=false", *sys.argv[2:],
         ]
         with initialize_config_module(config_module="loopzoo.conf", version_base="1.3"):
             cfg = compose(config_name="config", overrides=overrides)

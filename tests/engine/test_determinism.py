@@ -9,7 +9,7 @@ from loopzoo.engine.training import train_and_evaluate
 TINY = [
     "task.options.length=12", "task.options.train_size=128", "task.options.val_size=32",
     "task.options.test_size=32", "task.batch_size=32", "task.budget=400",
-    "trainer.max_steps=30", "protocol.val_every=10", "protocol.lr_grid=[0.003,0.01]",
+    "trainer.max_steps=30", "protocol.val_every=10", "protocol.trials=null",
     "trainer.enable_progress_bar=false",
 ]
 

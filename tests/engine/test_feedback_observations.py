@@ -82,7 +82,7 @@ def _config(name: str, options: dict):
         return compose_job([
             f"task={name}", "model=output-feedback", "model.feedback.mode=teacher_forcing",
             "~model.feedback.schedule", "~model.feedback.k", f"protocol.feedback_select={MEASURED}",
-            "protocol.lr_grid=null", "optim.lr=0.03", "trainer.max_steps=40",
+            "protocol.trials=null", "optim.lr=0.03", "trainer.max_steps=40",
             "protocol.val_every=20", "task.batch_size=16", "trainer.enable_progress_bar=false",
             *(f"++task.options.{key}={json.dumps(value)}" for key, value in options.items()),
         ])

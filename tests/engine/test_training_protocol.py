@@ -1,15 +1,17 @@
-"""The fair protocol end to end on tiny shipped configs: lr probes, early stopping, test once."""
+"""The fair protocol end to end on tiny shipped configs: early stopping, the step cap, tuning
+trials on validation only, test once."""
 
 from pathlib import Path
 
 import lightning as L
 import pytest
+import torch
 from hydra import compose, initialize_config_module
 
 import loopzoo
 from loopzoo.diagnostics import gradient_reach
 from loopzoo.engine import evaluation, module
-from loopzoo.engine.training import train_and_evaluate
+from loopzoo.engine.training import train_and_evaluate, validation_run
 from loopzoo.harness.baselines import baseline_records
 
 TINY = [
@@ -65,28 +67,35 @@ def test_a_run_returns_every_body_field(tmp_path: Path):
     assert reach["init_raw"] == pytest.approx(gradient_reach(untrained, val.x[:32], max_lag=11))
 
 
-def test_the_lr_grid_is_probed_and_the_best_probe_continued(tmp_path: Path):
+def test_a_run_trains_once_with_the_configured_rate_up_to_the_cap(tmp_path: Path):
     body = train_and_evaluate(
-        tiny_config("model=hidden-feedback", "protocol.lr_grid=[0.001,0.01,0.03]",
-                    "protocol.lr_probe_fraction=0.25", "protocol.patience=null"),
-        tmp_path,
-    )
-    lr = body["lr"]
-    assert lr["grid"] == [0.001, 0.01, 0.03]
-    assert lr["probe_steps"] == 10
-    assert set(lr["val_by_lr"]) == {"0.001", "0.01", "0.03"}
-    assert lr["chosen"] == min(lr["grid"], key=lambda v: lr["val_by_lr"][str(v)])
-    # Three probes of 10 steps, then the chosen one goes on from 10 to 40.
+        tiny_config("optim.lr=0.005", "protocol.patience=null"), tmp_path)
+    assert body["lr"] == {"chosen": 0.005}
     assert body["cost"]["steps"] == 40
-    assert body["cost"]["steps_with_probes"] == 3 * 10 + 30
-    # The chosen probe's best validation is where its curve starts.
-    assert body["curves"]["val"][0] == lr["val_by_lr"][str(lr["chosen"])]
+    assert body["convergence"] == {"stopped": "step_cap", "best_step": body["convergence"][
+        "best_step"], "steps": 40, "max_steps": 40}
 
 
-def test_a_single_rate_trains_once(tmp_path: Path):
-    body = train_and_evaluate(tiny_config("protocol.lr_grid=null", "optim.lr=0.005"), tmp_path)
-    assert body["lr"]["chosen"] == 0.005 and body["lr"]["grid"] is None
-    assert body["cost"]["steps_with_probes"] == body["cost"]["steps"] == 40
+def test_a_tuning_trial_scores_validation_only_and_can_be_pruned(tmp_path: Path, monkeypatch):
+    scored = []
+    original = evaluation.SplitScorer.score
+
+    def spy(self, model):
+        scored.append(self.split.x)
+        return original(self, model)
+
+    monkeypatch.setattr(evaluation.SplitScorer, "score", spy)
+    cfg = tiny_config("protocol.patience=null", "seed=4")
+    task = loopzoo.tasks.create("adding", seed=4, length=12, train_size=256, val_size=64,
+                                test_size=64)
+    pruned = validation_run(cfg, tmp_path, lambda step, value: step >= 20)
+    assert (pruned["stopped"], pruned["value"], pruned["steps"]) == ("pruned", None, 20)
+    reports = []
+    done = validation_run(cfg, tmp_path, lambda step, value: reports.append(value) or False)
+    assert (done["stopped"], done["steps"]) == ("step_cap", 40)
+    assert done["value"] == min(reports) and len(reports) == 4
+    assert len(scored) == 2 + 4
+    assert all(torch.equal(x, task.split("val").x) for x in scored)
 
 
 def test_early_stopping_after_patience_stale_validations(tmp_path: Path, monkeypatch):
@@ -96,13 +105,13 @@ def test_early_stopping_after_patience_stale_validations(tmp_path: Path, monkeyp
         evaluation.SplitScorer, "score", lambda self, model: {"plain": {"mse": 1.0, "mae": 1.0}}
     )
     body = train_and_evaluate(
-        tiny_config("protocol.lr_grid=null", "protocol.patience=2", "trainer.max_steps=200"),
+        tiny_config("protocol.trials=null", "protocol.patience=2", "trainer.max_steps=200"),
         tmp_path,
     )
-    assert body["lr"]["early_stopped"] is True
+    assert body["convergence"] == {"stopped": "early_stop", "best_step": 10, "steps": 30,
+                                   "max_steps": 200}
     assert body["curves"]["step"] == [10, 20, 30]
     assert body["cost"]["steps"] == 30
-    assert body["lr"]["best_step"] == 10
 
 
 def test_the_test_split_is_scored_once_for_the_chosen_setting(tmp_path: Path, monkeypatch):
@@ -144,9 +153,9 @@ def test_best_validation_weights_are_kept(tmp_path: Path, monkeypatch):
         return original_load(self, state_dict, *args, **kwargs)
 
     monkeypatch.setattr(module.torch.nn.Module, "load_state_dict", spy)
-    body = train_and_evaluate(tiny_config("protocol.lr_grid=null", "protocol.patience=null"),
+    body = train_and_evaluate(tiny_config("protocol.trials=null", "protocol.patience=null"),
                               tmp_path)
-    assert body["lr"]["best_step"] == 20
+    assert body["convergence"]["best_step"] == 20
     assert all((kept[k] == snapshots[1.0][k]).all() for k in snapshots[1.0])
     assert any((kept[k] != snapshots[4.0][k]).any() for k in snapshots[4.0])
 

@@ -15,7 +15,7 @@ from loopzoo.engine.training import train_and_evaluate
 
 SETTINGS = [
     "task=adding", "task.options.length=20", "task.budget=2000", "trainer.max_steps=800",
-    "protocol.lr_grid=[0.003,0.01]", "trainer.enable_progress_bar=false", "seed=0",
+    "protocol.trials=null", "trainer.enable_progress_bar=false", "seed=0",
 ]
 
 

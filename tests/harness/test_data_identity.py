@@ -26,7 +26,7 @@ def csv_job(path, out):
     return ["task=csv", f"task.options.path={path}", "task.options.target=humidity",
             "task.options.features=[heater_kw]", "task.options.time=hour",
             "task.options.window=4", "task.batch_size=8", "task.budget=300",
-            "trainer.max_steps=2", "protocol.val_every=1", "protocol.lr_grid=null",
+            "trainer.max_steps=2", "protocol.val_every=1", "protocol.trials=null",
             "trainer.enable_progress_bar=false", f"out={out}"]
 
 

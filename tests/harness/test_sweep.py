@@ -17,7 +17,7 @@ from loopzoo.harness.sweep import plan_sweep, run_sweep
 TINY = ["task=adding", "task.options.length=5", "task.options.train_size=16",
         "task.options.val_size=8", "task.options.test_size=8", "task.batch_size=8",
         "task.budget=300", "trainer.max_steps=2", "protocol.val_every=1",
-        "protocol.lr_grid=null", "hydra/launcher=basic"]
+        "protocol.trials=null", "hydra/launcher=basic"]
 
 
 def model_records(out):

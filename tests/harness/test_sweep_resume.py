@@ -16,7 +16,7 @@ from loopzoo.harness.sweep import plan_sweep
 SWEEP = ["model=gru,lstm,hidden-feedback", "seed=0,1", "task=adding", "task.options.length=8",
          "task.options.train_size=64", "task.options.val_size=16", "task.options.test_size=16",
          "task.batch_size=16", "task.budget=400", "trainer.max_steps=30", "protocol.val_every=10",
-         "protocol.lr_grid=[0.003,0.01]", "hydra.launcher.n_jobs=2"]
+         "protocol.trials=null", "hydra.launcher.n_jobs=2"]
 
 
 def model_records(out: Path) -> list[Path]:

@@ -105,7 +105,7 @@ def _train(*overrides: str) -> dict:
     return record
 
 
-_QUICK = ("trainer.max_steps=20", "trainer.enable_progress_bar=false", "protocol.lr_grid=null",
+_QUICK = ("trainer.max_steps=20", "trainer.enable_progress_bar=false", "protocol.trials=null",
           "protocol.val_every=10")
 
 

@@ -29,7 +29,7 @@ def test_a_trained_run_exports_and_serves_like_its_model(topology, tmp_path):
     out = tmp_path / "runs"
     _loopzoo("train", f"model={topology}", "task=adding", "task.options.length=10",
              "trainer.max_steps=20", "trainer.enable_progress_bar=false",
-             "protocol.lr_grid=null", "protocol.val_every=10", f"out={out}")
+             "protocol.trials=null", "protocol.val_every=10", f"out={out}")
     records = [json.loads(p.read_text()) for p in (out / "records").glob("*.json")]
     (record,) = [r for r in records if r["model"] == topology]
     assert record["status"] == "ok", record["reason"]

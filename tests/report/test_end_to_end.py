@@ -19,7 +19,7 @@ def test_report_reads_real_sweep_records(tmp_path):
     out = tmp_path / "sweep"
     sweep = subprocess.run(
         [*LOOPZOO, "sweep", "model=hidden-feedback,gru", "task=adding", "seed=0,1", f"out={out}",
-         "trainer.max_steps=60", "protocol.lr_grid=null", "task.options.length=20"],
+         "trainer.max_steps=60", "protocol.trials=null", "task.options.length=20"],
         capture_output=True, text=True, timeout=900,
     )
     assert sweep.returncode == 0, sweep.stderr[-2000:]

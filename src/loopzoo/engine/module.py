@@ -20,6 +20,7 @@ from __future__ import annotations
 import copy
 import math
 import time
+from collections.abc import Callable
 from dataclasses import asdict, dataclass, field
 from pathlib import Path
 from typing import Any
@@ -37,7 +38,7 @@ __all__ = ["FitState", "SequenceModule"]
 
 @dataclass
 class FitState:
-    """What training has done so far; carried across the phases of one run (lr probe, go on)."""
+    """What training has done so far."""
 
     step: int = 0
     curve_steps: list[int] = field(default_factory=list)
@@ -48,6 +49,7 @@ class FitState:
     best_weights: dict[str, torch.Tensor] | None = None
     stale_validations: int = 0
     early_stopped: bool = False
+    pruned: bool = False
     diverged_at: int | None = None
     reason: str | None = None
     clipped_steps: int = 0
@@ -117,6 +119,9 @@ class SequenceModule(L.LightningModule):
         self.patience: int | None = None
         self.handoff: Path | None = None
         self.distributed = False
+        # Called as on_validation(step, value) after each finite validation; True stops the run
+        # as pruned (a tuner's pruner cutting an unpromising trial).
+        self.on_validation: Callable[[int, float], bool] | None = None
 
     def phase(self, *, end_step: int, patience: int | None, handoff: Path | None = None) -> None:
         """Set the next fit to train until ``end_step`` total steps, early stopping after
@@ -146,7 +151,8 @@ class SequenceModule(L.LightningModule):
 
     def _done(self) -> bool:
         state = self.fit_state
-        return state.diverged or state.early_stopped or state.step >= self.end_step
+        return (state.diverged or state.early_stopped or state.pruned
+                or state.step >= self.end_step)
 
     def training_step(self, batch: tuple[torch.Tensor, ...], batch_idx: int) -> None:
         # One Lightning call brings several batches (see ``training_loader``); each is a step.
@@ -237,6 +243,8 @@ class SequenceModule(L.LightningModule):
             state.stale_validations += 1
             if self.patience is not None and state.stale_validations >= self.patience:
                 state.early_stopped = True
+        if self.on_validation is not None and self.on_validation(state.step, value):
+            state.pruned = True
 
     def on_fit_end(self) -> None:
         # ddp_spawn ships only the weights back to the launching process; the fit state and the

@@ -15,9 +15,11 @@ import loopzoo
 from loopzoo._registry import unknown_choice
 from loopzoo.engine.errors import ConfigError
 
-__all__ = ["FEEDBACK_SELECTIONS", "RunSettings", "read_settings"]
+__all__ = ["FEEDBACK_SELECTIONS", "TUNING_KEYS", "RunSettings", "read_settings"]
 
 FEEDBACK_SELECTIONS = ("free_running", "measured_feedback")
+# protocol keys read by the tuning orchestration, not by a single run.
+TUNING_KEYS = ("trials", "sampler", "pruner", "storage", "space")
 
 # Trainer arguments the training engine sets itself; passing them would break its protocol.
 _RESERVED_TRAINER_KEYS = {
@@ -51,8 +53,6 @@ class RunSettings:
     weight_decay: float
     grad_clip_norm: float | None
     optimizer_extra: dict[str, Any]
-    lr_grid: list[float] | None
-    lr_probe_fraction: float
     val_every: int
     patience: int | None
     tbptt_chunk: int | None
@@ -94,7 +94,7 @@ def read_settings(cfg: DictConfig | Mapping[str, Any]) -> RunSettings:
 
     Example::
 
-        settings = read_settings(cfg); settings.lr_grid   # [0.001, 0.003, 0.01]
+        settings = read_settings(cfg); settings.lr   # 0.003
     """
     if isinstance(cfg, DictConfig):
         cfg = OmegaConf.to_container(cfg, resolve=True)
@@ -133,17 +133,8 @@ def read_settings(cfg: DictConfig | Mapping[str, Any]) -> RunSettings:
                  low_open=True, allow_none=True)
 
     protocol = dict(protocol)
-    grid = protocol.pop("lr_grid", None)
-    if grid is not None:
-        if not isinstance(grid, list) or not grid:
-            raise ConfigError(f"protocol.lr_grid = {grid!r} is invalid; accepted: a non-empty "
-                              "list of positive numbers or null")
-        grid = [_real(f"protocol.lr_grid[{i}]", v, low=0.0, low_open=True)
-                for i, v in enumerate(grid)]
-        if len(set(grid)) != len(grid):
-            raise ConfigError(f"protocol.lr_grid = {grid!r} repeats a value")
-    probe = _real("protocol.lr_probe_fraction", protocol.pop("lr_probe_fraction", 0.25),
-                  low=0.0, low_open=True, high=1.0)
+    for key in TUNING_KEYS:  # the orchestration's tuning settings (loopzoo.harness.tuning)
+        protocol.pop(key, None)
     val_every = _positive_int("protocol.val_every", protocol.pop("val_every", 50))
     patience = _positive_int("protocol.patience", protocol.pop("patience", None), allow_none=True)
     chunk = _positive_int("protocol.tbptt_chunk", protocol.pop("tbptt_chunk", None),
@@ -153,8 +144,9 @@ def read_settings(cfg: DictConfig | Mapping[str, Any]) -> RunSettings:
         raise ConfigError(f"protocol.feedback_select = {select!r} is invalid; accepted: "
                           f"{', '.join(FEEDBACK_SELECTIONS)}")
     if protocol:
-        raise ConfigError(f"protocol keys {sorted(protocol)} are unknown; accepted: lr_grid, "
-                          "lr_probe_fraction, val_every, patience, tbptt_chunk, feedback_select")
+        raise ConfigError(f"protocol keys {sorted(protocol)} are unknown; accepted: "
+                          f"{', '.join(TUNING_KEYS)}, val_every, patience, tbptt_chunk, "
+                          "feedback_select")
 
     options = task.get("options") or {}
     if not isinstance(options, Mapping):
@@ -179,8 +171,6 @@ def read_settings(cfg: DictConfig | Mapping[str, Any]) -> RunSettings:
         weight_decay=weight_decay,
         grad_clip_norm=clip,
         optimizer_extra=optim,
-        lr_grid=grid,
-        lr_probe_fraction=probe,
         val_every=val_every,
         patience=patience,
         tbptt_chunk=chunk,

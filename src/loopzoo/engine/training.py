@@ -1,25 +1,20 @@
 """Train and evaluate one run under the fair protocol, and score a task's classical baselines.
 
 The fair protocol: the hidden width is solved per topology from the task's parameter budget
-(``loopzoo.width_for_budget``), every topology gets the same data, batch and step budget, the
-learning rate is chosen per topology on the validation split, training stops early on validation,
-and the test split is evaluated once, for the chosen rate and the best validation weights.
-
-Choosing the learning rate cheaply: each rate of ``protocol.lr_grid`` trains a short probe of
-``lr_probe_fraction * trainer.max_steps`` steps from the same initial weights, data order and seed;
-the probe with the best validation score is then continued (its weights, optimiser moments and
-data-order stream kept) to ``trainer.max_steps`` with early stopping. With three rates and a
-quarter-length probe a run costs 1.5x one training instead of 3x for a full run per rate. Short
-probes favour rates that learn fast early, which is the usual bias of this shortcut (common
-practice); ``lr_probe_fraction=1.0`` gives full runs per rate instead.
+(``loopzoo.width_for_budget``), every topology gets the same data and batch, training runs until
+early stopping on validation (``protocol.patience`` validations without improvement;
+``trainer.max_steps`` is a safety cap, and the record's ``convergence`` says which ended the
+run), and the test split is evaluated once, with the best validation weights. The learning rate
+and the topology's options are whatever the config holds: choosing them on validation is the
+tuner's job (``loopzoo.harness.tuning``), which calls ``validation_run`` for each trial.
 """
 
 from __future__ import annotations
 
 import copy
-import math
 import os
 import time
+from collections.abc import Callable
 from pathlib import Path
 from typing import Any
 
@@ -47,7 +42,7 @@ from loopzoo.engine.provenance import data_record, utc_now, versions
 from loopzoo.engine.schedules import TeacherForcingPlan
 from loopzoo.engine.settings import RunSettings, read_settings
 
-__all__ = ["train_and_evaluate"]
+__all__ = ["convergence", "train_and_evaluate", "validation_run"]
 
 _REACH_BATCH = 32
 _REACH_MAX_LAG = 200
@@ -80,7 +75,7 @@ def _gradient_reach(model: torch.nn.Module, x: torch.Tensor) -> list[float]:
 
 
 class _Run:
-    """One run's protocol state: the task, the initial model, the scorer, the probes."""
+    """One run's protocol state: the task, the initial model, the scorer, the fit timings."""
 
     def __init__(self, settings: RunSettings, task: Any, model: torch.nn.Module,
                  plan: TeacherForcingPlan, run_dir: Path) -> None:
@@ -129,44 +124,30 @@ class _Run:
         self.total_steps += module.fit_state.step - before
         self.val_seconds += module.fit_state.val_seconds - val_before
 
-    def choose_and_train(self) -> tuple[SequenceModule, dict[str, Any]]:
-        """Probe every rate of the grid, continue the best; returns it and the ``lr`` record."""
+    def fit_run(self, on_validation: Callable[[int, float], bool] | None = None
+                ) -> SequenceModule:
+        """Train with ``optim.lr`` until early stopping, the step cap, divergence or pruning."""
         settings = self.settings
-        grid = settings.lr_grid or [settings.lr]
-        if len(grid) == 1:
-            L.seed_everything(settings.seed, verbose=False)
-            module = self.module(grid[0])
-            self.fit(module, training_loader(self.train, settings.batch_size, settings.seed),
-                     end_step=settings.max_steps, patience=settings.patience)
-            best = module.fit_state.best_val
-            return module, {"chosen": grid[0], "grid": settings.lr_grid,
-                            "val_by_lr": {str(grid[0]): best}, "probe_steps": None}
-        probe_steps = min(settings.max_steps,
-                          max(settings.val_every, round(settings.lr_probe_fraction
-                                                        * settings.max_steps)))
-        probes: dict[float, tuple[SequenceModule, Any]] = {}
-        for lr in grid:
-            L.seed_everything(settings.seed, verbose=False)
-            module = self.module(lr)
-            loader = training_loader(self.train, settings.batch_size, settings.seed)
-            self.fit(module, loader, end_step=probe_steps, patience=None)
-            probes[lr] = (module, loader)
-        val_by_lr = {str(lr): (None if m.fit_state.diverged else m.fit_state.best_val)
-                     for lr, (m, _) in probes.items()}
-        healthy = [lr for lr, (m, _) in probes.items()
-                   if not m.fit_state.diverged and m.fit_state.best_val is not None]
-        lr_record = {"grid": list(grid), "val_by_lr": val_by_lr, "probe_steps": probe_steps}
-        if not healthy:
-            first = min(probes.values(), key=lambda p: p[0].fit_state.diverged_at or math.inf)[0]
-            return first, {"chosen": None, **lr_record}
-        sign = 1.0 if self.task.goal == "min" else -1.0
-        chosen = min(healthy, key=lambda lr: sign * probes[lr][0].fit_state.best_val)
-        module, loader = probes[chosen]
-        # Fresh draws (dropout, sampling coins) that do not depend on which other rates ran.
-        L.seed_everything(settings.seed + 1, verbose=False)
-        if module.fit_state.step < settings.max_steps:
-            self.fit(module, loader, end_step=settings.max_steps, patience=settings.patience)
-        return module, {"chosen": chosen, **lr_record}
+        L.seed_everything(settings.seed, verbose=False)
+        module = self.module(settings.lr)
+        module.on_validation = on_validation
+        self.fit(module, training_loader(self.train, settings.batch_size, settings.seed),
+                 end_step=settings.max_steps, patience=settings.patience)
+        return module
+
+
+def convergence(state: Any, max_steps: int) -> dict[str, Any]:
+    """How a run ended: ``stopped`` is early_stop, step_cap, diverged or pruned."""
+    if state.diverged:
+        stopped = "diverged"
+    elif state.pruned:
+        stopped = "pruned"
+    elif state.early_stopped:
+        stopped = "early_stop"
+    else:
+        stopped = "step_cap"
+    return {"stopped": stopped, "best_step": state.best_step, "steps": state.step,
+            "max_steps": max_steps}
 
 
 def _metrics(groups_val: dict[str, dict[str, float]], groups_test: dict[str, dict[str, float]],
@@ -210,8 +191,9 @@ def train_and_evaluate(cfg: DictConfig, run_dir: Path) -> dict[str, Any]:
                   "hidden_size": model.hidden_size},
         "versions": versions(),
         "primary": {"name": task.metric, "goal": task.goal},
-        "metrics": None, "lr": None, "curves": None, "cost": None, "gradient_reach": None,
-        "feedback": None, "started": started, "finished": None, "data": data_record(task),
+        "metrics": None, "lr": None, "convergence": None, "curves": None, "cost": None,
+        "gradient_reach": None, "feedback": None, "started": started, "finished": None,
+        "data": data_record(task),
     }
     if run.feeds_back:
         body["feedback"] = {**plan.describe(), "fed_back": model.options.get("fed_back"),
@@ -229,20 +211,44 @@ def train_and_evaluate(cfg: DictConfig, run_dir: Path) -> dict[str, Any]:
     return body
 
 
+def validation_run(cfg: DictConfig, run_dir: Path,
+                   on_validation: Callable[[int, float], bool] | None = None) -> dict[str, Any]:
+    """Train ``cfg`` as a tuning trial: scored on validation only (the test split is never
+    scored), no artifact, no cost measurements.
+
+    ``on_validation(step, value)`` is called after every finite validation; returning True stops
+    the run as pruned. Returns ``{"value"``: the best validation primary metric, or None when the
+    run diverged, was pruned or never validated; ``"stopped"``, ``"steps"``, ``"seconds"}``.
+    ``ConfigError`` for a config refused before training (e.g. an impossible budget).
+    """
+    clock = time.perf_counter()
+    settings = read_settings(cfg)
+    task = build_task(settings)
+    model = build_model(settings, task)
+    plan, _ = observed_plan(_feedback_plan(settings, model), task)
+    run = _Run(settings, task, model, plan, Path(run_dir))
+    state = run.fit_run(on_validation).fit_state
+    ended = convergence(state, settings.max_steps)
+    usable = ended["stopped"] in ("early_stop", "step_cap") and state.best_val is not None
+    return {"value": state.best_val if usable else None, "stopped": ended["stopped"],
+            "steps": state.step, "seconds": time.perf_counter() - clock}
+
+
 def _train(run: _Run, body: dict[str, Any]) -> None:
     reach_x = run.val.x[:_REACH_BATCH]
     reach_init = _gradient_reach(run.model, reach_x)
     memory = PeakMemory()
     memory.start()
-    module, body["lr"] = run.choose_and_train()
+    module = run.fit_run()
     peak_mb = memory.peak_mb()
     state = module.fit_state
+    body["lr"] = {"chosen": run.settings.lr}
+    body["convergence"] = convergence(state, run.settings.max_steps)
     body["curves"] = {"step": state.curve_steps, "train_loss": state.curve_train,
                       "val": state.curve_val}
     train_seconds = max(run.fit_seconds - run.val_seconds, 0.0)
     body["cost"] = {
         "wall_seconds": None, "train_seconds": train_seconds, "steps": state.step,
-        "steps_with_probes": run.total_steps,
         "train_ms_per_step": 1000.0 * train_seconds / max(run.total_steps, 1),
         "clip_rate": state.clipped_steps / max(state.step, 1),
         "peak_memory_mb": peak_mb, "peak_memory_start_mb": memory.start_mb,
@@ -250,18 +256,13 @@ def _train(run: _Run, body: dict[str, Any]) -> None:
         "step_latency_ms": None, "batched_step_latency_ms": None, "batched_batch_size": None,
     }
     if state.diverged:
-        reason = state.reason
-        if body["lr"]["chosen"] is None:
-            reason = f"every rate of protocol.lr_grid diverged; the first: {reason}"
-        body.update(status="diverged", reason=reason, diverged_at_step=state.diverged_at)
+        body.update(status="diverged", reason=state.reason, diverged_at_step=state.diverged_at)
         return
     if state.best_weights is None:
         body.update(status="failed", reason="training ended before its first validation")
         return
     model = module.model
     model.load_state_dict(state.best_weights)
-    body["lr"]["best_step"] = state.best_step
-    body["lr"]["early_stopped"] = state.early_stopped
     try:
         val = SplitScorer(run.task, run.val, feeds_back=run.feeds_back,
                           measured=run.measured).score(model)

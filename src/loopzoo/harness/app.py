@@ -21,9 +21,10 @@ from hydra.core.hydra_config import HydraConfig
 from omegaconf import DictConfig, OmegaConf, open_dict
 
 from loopzoo._io import atomic_write_json, atomic_write_text
-from loopzoo.harness import records, runids, state
+from loopzoo.harness import records, runids, state, tuning
 from loopzoo.harness.config import cores
 from loopzoo.harness.errors import ConfigError, OutDirError
+from loopzoo.harness.reproduce import reproduce_command
 from loopzoo.harness.shipped import CONFIG_MODULE
 
 __all__ = ["Outcome", "run_one", "ensure_baselines", "threads_for_launcher", "sweep_job"]
@@ -99,7 +100,7 @@ def ensure_baselines(cfg: DictConfig) -> int:
 
 
 def _train(cfg: DictConfig, run_dir: Path, started: str) -> dict[str, Any]:
-    """The training engineer's ``train_and_evaluate``; an unexpected error becomes a failed body."""
+    """The training engine's ``train_and_evaluate``; an unexpected error becomes a failed body."""
     from loopzoo.engine.training import train_and_evaluate
 
     try:
@@ -110,6 +111,62 @@ def _train(cfg: DictConfig, run_dir: Path, started: str) -> dict[str, Any]:
         atomic_write_text(run_dir / "error.txt", traceback.format_exc())
         reason = f"{type(error).__name__}: {error}"
         return records.failed_body(OmegaConf.to_container(cfg, resolve=True), reason, started)
+
+
+def _run_trial(cfg: DictConfig, folder: Path, report: Any) -> tuning.TrialOutcome:
+    """One tuning trial through the engine; a config the tuned values make impossible (e.g. a
+    parameter budget too small for the depth) is a finished trial without a value."""
+    from loopzoo.engine.training import validation_run
+
+    tick = time.perf_counter()
+    try:
+        result = validation_run(cfg, folder, report)
+    except ConfigError as error:
+        log.warning("trial refused: %s", error)
+        return tuning.TrialOutcome(None, "refused", 0, time.perf_counter() - tick)
+    return tuning.TrialOutcome(result["value"], result["stopped"], result["steps"],
+                               result["seconds"])
+
+
+def _trial_line(cfg: DictConfig, settings: tuning.TuningSettings) -> Any:
+    def show(number: int, outcome: tuning.TrialOutcome) -> None:
+        value = "-" if outcome.value is None else f"{outcome.value:.4g}"
+        print(f"  trial {number:>3} {cfg.model.name:<16} {cfg.task.name:<10} val={value:<10} "
+              f"{outcome.stopped:<10} {outcome.steps:>5} steps {outcome.seconds:6.1f} s",
+              flush=True)
+
+    return show
+
+
+def _tune_and_train(cfg: DictConfig, settings: tuning.TuningSettings | None, run_dir: Path,
+                    started: str, rid: str) -> tuple[dict[str, Any], DictConfig]:
+    """Finish the study (if tuned), train its chosen values with this job's seed; returns the
+    record body and the config that was trained."""
+    summary = None
+    trained = cfg
+    if settings is not None:
+        try:
+            study = tuning.ensure_trials(cfg, settings, _run_trial,
+                                         on_trial=_trial_line(cfg, settings))
+        except (ConfigError, OutDirError):
+            raise
+        except Exception as error:  # recorded as failed (redone on rerun) so the sweep goes on
+            atomic_write_text(run_dir / "error.txt", traceback.format_exc())
+            reason = f"a tuning trial failed: {type(error).__name__}: {error}"
+            config = OmegaConf.to_container(cfg, resolve=True)
+            return records.failed_body(config, reason, started), cfg
+        summary = tuning.tuning_summary(study, settings)
+        if summary["chosen"] is None:
+            reason = (f"no trial of study {summary['study']} completed ({summary['diverged']} "
+                      f"diverged, {summary['pruned']} pruned, of {summary['trials']})")
+            body = records.failed_body(OmegaConf.to_container(cfg, resolve=True), reason, started)
+            body["tuning"] = summary
+            return body, cfg
+        trained = tuning.chosen_config(cfg, summary)
+    body = _train(trained, run_dir, started)
+    body["tuning"] = summary
+    body["reproduce"] = reproduce_command(trained, out=f"reproduce/{rid}")
+    return body, trained
 
 
 def run_one(cfg: DictConfig, *, threads: int | None = None, sweep: bool = False) -> Outcome:
@@ -149,6 +206,9 @@ def _run_locked(cfg: DictConfig, out: Path, sweep: bool) -> Outcome:
     content = runids.identity(cfg)
     rid = runids.run_id(content)
     tick = time.perf_counter()
+    settings = tuning.read_tuning(cfg)  # refused here, before any training
+    if settings is not None:
+        tuning.check_study(cfg, settings)
     with state.file_lock(state.state_dir(out) / "locks" / f"{rid}.lock"):
         kept = records.is_done(out, rid)
         if kept is not None:
@@ -162,8 +222,10 @@ def _run_locked(cfg: DictConfig, out: Path, sweep: bool) -> Outcome:
             run_dir = out / "runs" / rid
             shutil.rmtree(run_dir, ignore_errors=True)  # leftovers of an interrupted attempt
             run_dir.mkdir(parents=True)
-            body = _changed_files(_train(cfg, run_dir, started), content)
-            config = OmegaConf.to_container(cfg, resolve=True)
+            body, trained = _tune_and_train(cfg, settings, run_dir, started, rid)
+            body = _changed_files(body, content)
+            # The config that was trained: the job's, with the tuned values written in.
+            config = OmegaConf.to_container(trained, resolve=True)
             records.write_record(
                 out, records.make_record(body, run_id=rid, kind="model", config=config)
             )

@@ -34,6 +34,7 @@ __all__ = [
     "composer",
     "compose_job",
     "finish_config",
+    "apply_per_task",
 ]
 
 GROUPS = ("model", "task", "trainer", "optim", "protocol", "suite", "hydra/launcher")
@@ -170,7 +171,8 @@ def _leaves(node: Any, prefix: str = "") -> list[str]:
     return [leaf for key, value in node.items() for leaf in _leaves(value, f"{prefix}{key}.")]
 
 
-def _apply_per_task(cfg: DictConfig, overrides: list[str]) -> DictConfig:
+def apply_per_task(cfg: DictConfig, overrides: list[str]) -> DictConfig:
+    """Merge the suite's ``per_task`` fragment for ``cfg``'s task; the command line still wins."""
     per_task = OmegaConf.to_container(cfg.per_task, resolve=False)
     known_tasks = group_options("task")
     for name in per_task:
@@ -241,7 +243,7 @@ def finish_config(cfg: DictConfig, overrides: list[str]) -> DictConfig:
     The result is a struct-mode ``DictConfig`` without the ``hydra`` node: what a run records.
     Missing required values (``???``, e.g. the csv task's path) are refused by name.
     """
-    cfg = _apply_per_task(cfg, overrides)
+    cfg = apply_per_task(cfg, overrides)
     try:
         data = OmegaConf.to_container(cfg, resolve=True, throw_on_missing=True)
     except MissingMandatoryValue as error:

@@ -74,7 +74,7 @@ KEPT_ON_RERUN = ("ok", "diverged")
 BODY_FIELDS = (
     "status", "reason", "diverged_at_step", "model", "task", "suite", "seed", "params", "budget",
     "sizes", "versions", "primary", "metrics", "lr", "curves", "cost", "gradient_reach",
-    "feedback", "started", "finished",
+    "feedback", "convergence", "tuning", "reproduce", "started", "finished",
 )
 
 

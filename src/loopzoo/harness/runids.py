@@ -20,6 +20,7 @@ __all__ = ["IDENTITY_EXCLUDED", "data_files", "identity", "run_id", "baseline_ru
 IDENTITY_EXCLUDED: tuple[str, ...] = (
     "out",
     "per_task",
+    "protocol.storage",
     "trainer.enable_progress_bar",
     "trainer.enable_model_summary",
 )

@@ -16,7 +16,7 @@ from pathlib import Path
 
 from omegaconf import DictConfig, OmegaConf
 
-from loopzoo.harness import records, runids, state
+from loopzoo.harness import records, runids, state, tuning
 from loopzoo.harness.config import compose_job, composer, parse_overrides, plain_task_options
 from loopzoo.harness.errors import ConfigError
 from loopzoo.harness.hydra_private import run_multirun, split_jobs
@@ -78,6 +78,19 @@ def _remove_stale_temp_files(out: Path) -> None:
         tmp.unlink(missing_ok=True)
 
 
+def _check_studies(plan: SweepPlan) -> None:
+    """Tuning settings of every job, and the stored studies' search spaces, before any training."""
+    checked: set[str] = set()
+    for overrides, job in zip(plan.overrides, plan.jobs, strict=True):
+        try:
+            settings = tuning.read_tuning(job)
+            if settings is not None and settings.study not in checked:
+                tuning.check_study(job, settings)
+                checked.add(settings.study)
+        except ConfigError as error:
+            raise ConfigError(f"job {' '.join(overrides)}: {error}") from None
+
+
 def run_sweep(overrides: list[str]) -> int:
     """Run the sweep; print one line per finished job and a summary. Returns the exit code:
     0 when every job ran or was skipped (diverged and failed runs are recorded results),
@@ -88,6 +101,7 @@ def run_sweep(overrides: list[str]) -> int:
     overrides = plain_task_options(overrides)
     plan = plan_sweep(overrides)
     records.claim_out_dir(plan.out, plan.suite)
+    _check_studies(plan)
     with state.sweep_lock(plan.out):
         _remove_stale_temp_files(plan.out)
         ids = plan.run_ids

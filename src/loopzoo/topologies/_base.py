@@ -17,6 +17,7 @@ from torch import Tensor, nn
 
 from loopzoo._registry import Registry
 from loopzoo.topologies._options import Option, is_real, resolve_options, size
+from loopzoo.topologies._search import SearchRange
 
 __all__ = [
     "TOPOLOGIES",
@@ -145,13 +146,15 @@ class RecurrentTopology(nn.Module):
     """Base of every registered topology: one interface for batch forward, streaming step and state.
 
     Subclasses set ``option_specs`` and implement ``state_sizes``, ``_sequence`` and
-    ``step_unchecked`` (output feedback overrides ``forward_unchecked`` instead of ``_sequence``).
+    ``step_unchecked`` (output feedback overrides ``forward_unchecked`` instead of ``_sequence``);
+    ``tunable`` declares the options worth tuning and their ranges (``loopzoo.topologies._search``).
     Shapes: B batch, T time, I input_size, O output_size; every state tensor is (B, n).
     """
 
     topology: ClassVar[str] = ""
     feeds_back_output: ClassVar[bool] = False
     option_specs: ClassVar[Mapping[str, Option]] = {}
+    tunable: ClassVar[Mapping[str, SearchRange]] = {}
 
     def __init__(self, *, input_size: int, output_size: int, hidden_size: int, **options: Any):
         super().__init__()

@@ -33,6 +33,7 @@ from loopzoo.topologies._base import (
     uniform_init,
 )
 from loopzoo.topologies._options import NONLINEARITY, Option, boolean, integer
+from loopzoo.topologies._search import Choices, IntegerRange
 
 __all__ = ["DeepTransition"]
 
@@ -57,6 +58,12 @@ class DeepTransition(RecurrentTopology):
         "transition_depth": Option(2, integer(1), "layers of the state-transition MLP"),
         "output_depth": Option(1, integer(1), "layers of the readout MLP (1: linear)"),
         "shortcut": Option(False, boolean(), "h_{t-1} and x_t also enter the last layer"),
+    }
+    # A transition of two layers is what makes it deep; a linear readout is the shallowest.
+    tunable = {
+        "transition_depth": IntegerRange(2, 4, hard=("low",)),
+        "output_depth": IntegerRange(1, 3, hard=("low",)),
+        "shortcut": Choices((False, True)),
     }
 
     def __init__(self, **sizes_and_options: Any) -> None:

@@ -52,6 +52,9 @@ class HiddenFeedback(RecurrentTopology):
         "nonlinearity": NONLINEARITY,
         "init": Option("uniform", choice("uniform", "identity"), "how W and the biases start"),
     }
+    # Nothing beyond the optimiser: the nonlinearity and init name the row (plain tanh, or IRNN
+    # with relu and identity), so they are chosen by the user, not searched.
+    tunable = {}
 
     def __init__(self, **sizes_and_options: Any) -> None:
         super().__init__(**sizes_and_options)

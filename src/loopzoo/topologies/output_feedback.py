@@ -44,6 +44,7 @@ from loopzoo.topologies._base import (
     uniform_init,
 )
 from loopzoo.topologies._options import NONLINEARITY, Option, choice
+from loopzoo.topologies._search import RealRange
 
 __all__ = ["OutputFeedback"]
 
@@ -99,6 +100,14 @@ class OutputFeedback(RecurrentTopology):
             "own output fed back when free running ('auto': value / distribution)",
         ),
         "delay": Option(1, _check_delay, "steps between an output and the step it is fed into"),
+    }
+    # "feedback.<key>" names a key of the harness's teacher-forcing schedule (model.feedback):
+    # k of the inverse-sigmoid decay e_i = k / (k + exp(i / k)) (Bengio et al. 2015), which sets
+    # how many training steps pass before the model mostly feeds back its own output.
+    tunable = {
+        "feedback.k": RealRange(5.0, 500.0, log=True,
+                                only_if={"feedback.mode": ("scheduled",),
+                                         "feedback.schedule": ("inverse_sigmoid",)}),
     }
 
     def __init__(self, **sizes_and_options: Any) -> None:

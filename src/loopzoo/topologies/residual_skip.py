@@ -36,6 +36,7 @@ from loopzoo.topologies._base import (
 )
 from loopzoo.topologies._elman import AdditiveRecurrence
 from loopzoo.topologies._options import NONLINEARITY, Option, choice, num_layers, real
+from loopzoo.topologies._search import Choices, IntegerRange, RealRange
 
 __all__ = ["GatedResidualRecurrence", "ResidualSkip"]
 
@@ -99,6 +100,12 @@ class ResidualSkip(RecurrentTopology):
         "mode": Option("gated", choice("gated", "scaled"), "how the update is weighted"),
         "scale": Option(1.0, real(0.0, 1.0, low_open=True), "s for mode='scaled'"),
         "num_layers": num_layers(1),
+    }
+    # scale <= 1 is the option's own limit; the scale applies to mode 'scaled' only.
+    tunable = {
+        "mode": Choices(("scaled", "gated")),
+        "scale": RealRange(0.03, 1.0, log=True, hard=("high",), only_if={"mode": ("scaled",)}),
+        "num_layers": IntegerRange(1, 3, hard=("low",)),
     }
 
     def __init__(self, **sizes_and_options: Any) -> None:

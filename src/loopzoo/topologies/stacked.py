@@ -26,6 +26,7 @@ from loopzoo.topologies._base import (
 )
 from loopzoo.topologies._elman import AdditiveRecurrence
 from loopzoo.topologies._options import DROPOUT, NONLINEARITY, check_dropout_layers, num_layers
+from loopzoo.topologies._search import IntegerRange, RealRange
 
 __all__ = ["Stacked"]
 
@@ -45,6 +46,11 @@ class Stacked(RecurrentTopology):
     """
 
     option_specs = {"nonlinearity": NONLINEARITY, "num_layers": num_layers(2), "dropout": DROPOUT}
+    # Two layers are what makes it stacked; no dropout is the option's own limit.
+    tunable = {
+        "num_layers": IntegerRange(2, 4, hard=("low",)),
+        "dropout": RealRange(0.0, 0.3, hard=("low",)),
+    }
 
     def __init__(self, **sizes_and_options: Any) -> None:
         super().__init__(**sizes_and_options)

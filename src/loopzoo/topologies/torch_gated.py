@@ -29,6 +29,7 @@ from loopzoo.topologies._base import (
     uniform_init,
 )
 from loopzoo.topologies._options import DROPOUT, check_dropout_layers, num_layers
+from loopzoo.topologies._search import IntegerRange, RealRange
 
 __all__ = ["GRU", "LSTM"]
 
@@ -39,6 +40,11 @@ class _TorchGated(RecurrentTopology):
     layer_class: ClassVar[type[nn.RNNBase]]
     states_per_layer: ClassVar[int]
     option_specs = {"num_layers": num_layers(1), "dropout": DROPOUT}
+    # Dropout acts between layers, so it is searched only with two or more.
+    tunable = {
+        "num_layers": IntegerRange(1, 3, hard=("low",)),
+        "dropout": RealRange(0.0, 0.3, hard=("low",), only_if={"num_layers": (2, 3)}),
+    }
 
     def __init__(self, **sizes_and_options: Any) -> None:
         super().__init__(**sizes_and_options)
