@@ -29,10 +29,12 @@ def test_the_command_composes_back_to_the_trained_config(overrides):
     assert OmegaConf.to_container(again, resolve=True) == expected
 
 
-def test_strings_that_the_grammar_would_misread_are_quoted():
+def test_strings_that_the_grammar_would_misread_are_quoted(tmp_path):
+    data = tmp_path / "my data, v2.csv"
+    data.write_text("level\n" + "\n".join(str(i % 7) for i in range(200)) + "\n")
     with composer():
-        cfg = compose_job(["task=csv", "task.options.path='my data, v2.csv'",
+        cfg = compose_job(["task=csv", f"task.options.path='{data}'",
                            "task.options.target=level", "out=x"])
         overrides = reproduce_overrides(cfg, out="o")
         again = compose_job(overrides)
-    assert again.task.options.path == "my data, v2.csv"
+    assert again.task.options.path == str(data)
