@@ -64,6 +64,12 @@ def test_shortest_record_is_the_minimum(per_part, val_fraction, test_fraction):
 @given(st.integers(0, 2**31), st.integers(30, 300))
 def test_stratified_parts_partition_each_class(seed, count):
     labels = np.random.default_rng(seed).integers(0, 4, size=count)
+    sizes = [int((labels == label).sum()) for label in np.unique(labels)]
+    if any(min(round(n * 0.2), round(n * 0.3), n - round(n * 0.2) - round(n * 0.3)) < 1
+           for n in sizes):  # a class that cannot reach train, val and test is refused
+        with pytest.raises(ValueError, match="too few to appear in the train, val and test"):
+            stratified_parts(labels, {"val": 0.2, "test": 0.3}, np.random.default_rng(seed))
+        return
     parts = stratified_parts(labels, {"val": 0.2, "test": 0.3}, np.random.default_rng(seed))
     everything = np.concatenate(list(parts.values()))
     assert np.array_equal(np.sort(everything), np.arange(count))
