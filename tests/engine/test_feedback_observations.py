@@ -90,7 +90,7 @@ def _config(name: str, options: dict):
 
 def _zero_input_weights(monkeypatch: pytest.MonkeyPatch) -> None:
     """Every model the harness builds starts, and stays, with input weights U = 0."""
-    build = training._build_model
+    build = training.build_model
 
     def zeroed(settings, task):
         model = build(settings, task)
@@ -99,7 +99,7 @@ def _zero_input_weights(monkeypatch: pytest.MonkeyPatch) -> None:
         model.weight_ih.requires_grad_(False)
         return model
 
-    monkeypatch.setattr(training, "_build_model", zeroed)
+    monkeypatch.setattr(training, "build_model", zeroed)
 
 
 def _per_step_predictions(task, split) -> list[torch.Tensor]:
