@@ -28,8 +28,8 @@ def tiny_config(*overrides: str):
     ("overrides", "message"),
     [
         (["task.budget=5"], r"task.budget = 5 cannot be met .*smallest"),
-        (["model.name=elmann"], r"unknown topology 'elmann'.*hidden-feedback"),
-        (["task.name=adder"], r"unknown task 'adder'.*adding"),
+        (["model.name=elmann"], r"unknown model.name 'elmann'.*hidden-feedback"),
+        (["task.name=adder"], r"unknown task.name 'adder'.*adding"),
         (["optim.lr=-1"], r"optim.lr = -1 is invalid; accepted: a finite number > 0"),
         (["optim.name=adagrad"], r"unknown optimizer 'adagrad'; available: adam"),
         (["+optim.momentum=0.9"], r"optim keys \['momentum'\].*optimizer 'adam'"),
