@@ -40,12 +40,14 @@ def test_the_key_outside_the_config_is_read_from_hydras_message(override):
 def test_run_multirun_launches_every_job_and_restores_argv(tmp_path: Path):
     seen: list[int] = []
 
-    @hydra.main(version_base="1.3", config_path=None, config_name=None)
+    (tmp_path / "config.yaml").write_text("n: 0\n")
+
+    @hydra.main(version_base="1.3", config_path=str(tmp_path), config_name="config")
     def job(cfg: DictConfig) -> None:
         seen.append(int(cfg.n))
 
     argv = list(sys.argv)
-    run_multirun(job, ["+n=1,2,3", f"hydra.sweep.dir={tmp_path}",
+    run_multirun(job, ["n=1,2,3", f"hydra.sweep.dir={tmp_path / 'multirun'}",
                        "hydra/job_logging=disabled", "hydra/hydra_logging=disabled"])
     assert seen == [1, 2, 3]
     assert sys.argv == argv

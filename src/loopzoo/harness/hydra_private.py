@@ -17,7 +17,7 @@ from hydra.core.override_parser.types import Override
 __all__ = ["missing_config", "not_in_struct", "run_multirun", "split_jobs"]
 
 _MISSING = re.compile(r"Could not find '([^']+)'")
-_NOT_IN_STRUCT = re.compile(r"Could not (?:override|append to|delete from) '([^']+)'")
+_NOT_IN_STRUCT = re.compile(r"Could not (?:override|append to|delete from)(?: config\.)? '([^']+)'")
 
 
 def split_jobs(overrides: list[Override]) -> list[list[str]]:
@@ -41,7 +41,7 @@ def missing_config(message: str) -> str | None:
 
 
 def not_in_struct(message: str) -> str | None:
-    """The dotted key of Hydra's "Could not override / append to / delete from 'key'" error.
+    """The dotted key of Hydra's "Could not override 'key'" (or append to / delete from) error.
 
     Stands in for a structured field naming the key an override could not set (Hydra 1.3's
     ``ConfigCompositionException`` carries only the message).
