@@ -6,7 +6,6 @@ from pathlib import Path
 
 import pytest
 import torch
-from hydra import compose, initialize_config_module
 
 import loopzoo
 from loopzoo.engine.data import training_loader
@@ -16,22 +15,10 @@ from loopzoo.engine.module import SequenceModule
 from loopzoo.engine.schedules import TeacherForcingPlan
 from loopzoo.engine.training import train_and_evaluate
 
-TINY = [
-    "task.options.length=12", "task.options.train_size=128", "task.options.val_size=32",
-    "task.options.test_size=32", "task.batch_size=32", "task.budget=400",
-    "trainer.max_steps=20", "protocol.val_every=10", "protocol.trials=null",
-    "trainer.enable_progress_bar=false",
-]
-
-
-def tiny_config(*overrides: str):
-    """The shipped config composed with Hydra and shrunk to a run of well under a second."""
-    with initialize_config_module(config_module="loopzoo.conf", version_base="1.3"):
-        return compose(config_name="config", overrides=[*TINY, *overrides])
-
 
 @pytest.mark.parametrize(("clip", "rate"), [("0.000001", 1.0), ("null", 0.0)])
-def test_clip_rate_counts_the_steps_whose_norm_exceeded_the_limit(tmp_path: Path, clip, rate):
+def test_clip_rate_counts_the_steps_whose_norm_exceeded_the_limit(tiny_config,
+                                                                  tmp_path: Path, clip, rate):
     body = train_and_evaluate(tiny_config(f"optim.grad_clip_norm={clip}"), tmp_path)
     assert body["cost"]["clip_rate"] == rate
 

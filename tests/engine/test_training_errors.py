@@ -4,24 +4,10 @@ diverging and failing runs are recorded, never raised."""
 from pathlib import Path
 
 import pytest
-from hydra import compose, initialize_config_module
 
 from loopzoo.engine import module
 from loopzoo.engine.training import train_and_evaluate
 from loopzoo.harness.errors import ConfigError
-
-TINY = [
-    "task.options.length=12", "task.options.train_size=128", "task.options.val_size=32",
-    "task.options.test_size=32", "task.batch_size=32", "task.budget=400",
-    "trainer.max_steps=20", "protocol.val_every=10", "protocol.trials=null",
-    "trainer.enable_progress_bar=false",
-]
-
-
-def tiny_config(*overrides: str):
-    """The shipped config composed with Hydra and shrunk to a run of well under a second."""
-    with initialize_config_module(config_module="loopzoo.conf", version_base="1.3"):
-        return compose(config_name="config", overrides=[*TINY, *overrides])
 
 
 @pytest.mark.parametrize(
@@ -45,7 +31,8 @@ def tiny_config(*overrides: str):
         (["task.options.length=0"], r"task 'adding'"),
     ],
 )
-def test_bad_configs_are_refused_before_training(tmp_path: Path, monkeypatch, overrides, message):
+def test_bad_configs_are_refused_before_training(tiny_config,
+                                                 tmp_path: Path, monkeypatch, overrides, message):
     trained = []
     monkeypatch.setattr(module.SequenceModule, "training_step", lambda *a: trained.append(1))
     with pytest.raises(ConfigError, match=message):
@@ -53,7 +40,8 @@ def test_bad_configs_are_refused_before_training(tmp_path: Path, monkeypatch, ov
     assert not trained
 
 
-def test_a_non_finite_step_is_recorded_as_diverged_at_that_step(tmp_path: Path, monkeypatch):
+def test_a_non_finite_step_is_recorded_as_diverged_at_that_step(tiny_config,
+                                                                tmp_path: Path, monkeypatch):
     calls = []
     original = module.masked_loss
 
@@ -71,7 +59,7 @@ def test_a_non_finite_step_is_recorded_as_diverged_at_that_step(tmp_path: Path, 
     assert body["cost"]["steps"] == 6
 
 
-def test_an_error_inside_training_is_recorded_as_failed(tmp_path: Path, monkeypatch):
+def test_an_error_inside_training_is_recorded_as_failed(tiny_config, tmp_path: Path, monkeypatch):
     def broken(*args, **kwargs):
         raise RuntimeError("simulated out-of-memory")
 
