@@ -71,7 +71,7 @@ def test_train_writes_one_record_then_skips_it(tmp_path, capsys):
     (["sweep", "suite=quick,long-lag"], "suite takes one name per sweep"),
     (["sweep", "model=gru,nope"], "job model=nope"),
     (["train", "hydra/launcher=slurmm"], "unknown hydra/launcher 'slurmm'"),
-    (["frobnicate"], "unknown command 'frobnicate'; available: list, train, sweep"),
+    (["frobnicate"], "unknown command 'frobnicate'; available: list, options, train, sweep"),
 ])
 def test_bad_input_is_named_with_what_is_accepted(argv, expected, capsys, tmp_path):
     assert cli.main([*argv, f"out={tmp_path}"] if argv[0] != "frobnicate" else argv) == 2
