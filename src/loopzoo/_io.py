@@ -9,7 +9,8 @@ import tempfile
 from pathlib import Path
 from typing import Any
 
-__all__ = ["atomic_write_bytes", "atomic_write_text", "atomic_write_json", "json_safe"]
+__all__ = ["atomic_write_bytes", "atomic_write_text", "atomic_write_json", "check_folder",
+           "json_safe"]
 
 
 def atomic_write_bytes(path: str | os.PathLike[str], data: bytes) -> None:
@@ -59,3 +60,19 @@ def json_safe(value: Any) -> Any:
 def atomic_write_json(path: str | os.PathLike[str], obj: Any) -> None:
     """Write ``obj`` as indented, key-sorted JSON to ``path`` atomically."""
     atomic_write_text(path, json.dumps(obj, indent=2, sort_keys=True, allow_nan=False) + "\n")
+
+
+def check_folder(path: str | os.PathLike[str], name: str) -> None:
+    """Refuse (``ValueError``, naming ``name``) a ``path`` that is not a folder this process can
+    write in or make: a file, a path under a file, or a folder without write permission."""
+    folder = Path(path)
+    existing = next(p for p in (folder, *folder.parents) if p.exists() or p == p.parent)
+    if existing == folder and not folder.is_dir():
+        raise ValueError(f"{name} {str(folder)!r} is a file; it must name a folder (made if "
+                         "missing): choose another path")
+    if not existing.is_dir():
+        raise ValueError(f"{name} {str(folder)!r}: {str(existing)!r} is a file, so no folder can "
+                         "be made under it; choose another path")
+    if not os.access(existing, os.W_OK | os.X_OK):
+        raise ValueError(f"{name} {str(folder)!r}: {str(existing)!r} is not writable by this "
+                         "user; choose a writable folder")

@@ -15,6 +15,7 @@ Bad input exits with code 2 and a one-paragraph message, never a traceback.
 
 from __future__ import annotations
 
+import errno
 import sys
 from collections.abc import Callable
 from importlib import import_module
@@ -86,6 +87,25 @@ def _options(argv: list[str]) -> int:
     return 0
 
 
+_FILE_SYSTEM_HINTS = {
+    errno.ENOSPC: "the disk is full: free some space and run the same command again (finished "
+                  "runs are kept, nothing is half written)",
+    errno.EDQUOT: "the disk quota is used up: free some space and run the same command again",
+    errno.EROFS: "the file system is read-only: choose a writable folder",
+    errno.EACCES: "permission denied: choose a folder you may write in",
+    errno.EPERM: "permission denied: choose a folder you may write in",
+    errno.ENOTDIR: "a part of the path is a file, not a folder: choose another path",
+    errno.EISDIR: "the path is a folder where a file was expected: choose another path",
+}
+
+
+def _file_system_message(error: OSError) -> str:
+    """One paragraph: what could not be written or read, and what to do."""
+    where = f" ({error.filename})" if error.filename else ""
+    hint = _FILE_SYSTEM_HINTS.get(error.errno, "check the path and the disk")
+    return f"{error.strerror or error}{where}: {hint}"
+
+
 def _fail(message: str) -> int:
     print(f"loopzoo: error: {message}", file=sys.stderr)
     return 2
@@ -94,14 +114,14 @@ def _fail(message: str) -> int:
 def _train(argv: list[str]) -> int:
     from loopzoo.harness.app import run_one
     from loopzoo.harness.config import compose_job, composer, parse_overrides
-    from loopzoo.harness.records import claim_out_dir, record_path
+    from loopzoo.harness.records import check_out_dir, record_path
 
     swept = [o.input_line for o in parse_overrides(argv) if o.is_sweep_override()]
     if swept:
         return _fail(f"train runs one config; use 'loopzoo sweep' for {' '.join(swept)}")
     with composer():
         cfg = compose_job(argv)
-    claim_out_dir(cfg.out, cfg.suite)
+    check_out_dir(cfg.out, cfg.suite)
     outcome = run_one(cfg)
     print(f"{outcome.run_id}: {outcome.status} in {outcome.seconds:.1f} s"
           + (f" ({outcome.reason})" if outcome.reason else ""))
@@ -157,6 +177,8 @@ def main(argv: list[str] | None = None) -> int:
         print("loopzoo: interrupted; run the same command again to finish (finished runs are "
               "kept)", file=sys.stderr)
         return 130
+    except OSError as error:  # the file system refused: a full disk, a read-only or file path
+        return _fail(_file_system_message(error))
     except ValueError as error:  # ConfigError, OutDirError and the zoo's own argument checks
         from loopzoo.harness.errors import ConfigError, OutDirError
 

@@ -74,10 +74,15 @@ def test_classification_reads_variable_length_sequences(tmp_path):
         # steps written in reverse: the time column puts them back in order
         lines += [f"b{batch},{s},{temps[s]},{label}" for s in reversed(range(steps))]
     path = write(tmp_path, "kiln.csv", "\n".join(lines) + "\n")
-    task = loopzoo.tasks.create("csv-sequences", path=str(path), label="outcome",
-                                sequence="batch", time="step", seed=2)
+    with pytest.warns(UserWarning, match="rows are not in 'step' order; they are sorted"):
+        task = loopzoo.tasks.create("csv-sequences", path=str(path), label="outcome",
+                                    sequence="batch", time="step", seed=2)
     facts = task.describe()
     assert facts["classes"] == ["cracked", "sound"] and facts["sequences"] == 40
+    # a reversed run of n rows moves every row but the middle one of an odd n
+    moved = sum(len(temps) - len(temps) % 2 for temps, _ in expected.values())
+    assert facts["time"] == {"column": "step", "kind": "number",
+                             "rows_out_of_order_in_file": moved}
     mean, std = facts["scaling"]["mean"][0], facts["scaling"]["std"][0]
     keys = list(expected)
     seen = 0

@@ -76,8 +76,10 @@ def main(argv: list[str] | None = None) -> int:
             file=sys.stderr,
         )
         return 2
-    if args.out.exists() and not args.out.is_dir():
-        print(f"loopzoo export: --out {str(args.out)!r} is a file, not a folder", file=sys.stderr)
+    try:
+        _io.check_folder(args.out, "--out")
+    except ValueError as error:
+        print(f"loopzoo export: {error}", file=sys.stderr)
         return 2
     if not args.tolerance > 0:
         print(f"loopzoo export: --tolerance must be > 0, got {args.tolerance}", file=sys.stderr)

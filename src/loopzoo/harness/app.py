@@ -89,7 +89,9 @@ def ensure_baselines(cfg: DictConfig) -> int:
                 return 0
         config = OmegaConf.to_container(cfg, resolve=True)
         written = []
-        for body in baseline_records(cfg):
+        bodies = baseline_records(cfg)
+        records.claim_out_dir(out, cfg.suite)
+        for body in bodies:
             rid = runids.baseline_run_id(cfg, body["model"])
             record = records.make_record(body, run_id=rid, kind=body["kind"], config=config)
             records.write_record(out, record)
@@ -180,7 +182,7 @@ def run_one(cfg: DictConfig, *, threads: int | None = None, sweep: bool = False)
     import torch
 
     out = Path(cfg.out)
-    records.claim_out_dir(out, cfg.suite)
+    records.check_out_dir(out, cfg.suite)  # claimed only when its first record is written
     previous_threads = torch.get_num_threads()
     torch.set_num_threads(threads or cores())
     try:
@@ -226,6 +228,7 @@ def _run_locked(cfg: DictConfig, out: Path, sweep: bool) -> Outcome:
             body = _changed_files(body, content)
             # The config that was trained: the job's, with the tuned values written in.
             config = OmegaConf.to_container(trained, resolve=True)
+            records.claim_out_dir(out, cfg.suite)
             records.write_record(
                 out, records.make_record(body, run_id=rid, kind="model", config=config)
             )

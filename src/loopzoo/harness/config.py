@@ -6,7 +6,7 @@ from __future__ import annotations
 import difflib
 import os
 from collections.abc import Iterator
-from contextlib import contextmanager
+from contextlib import contextmanager, suppress
 from typing import Any
 
 from hydra import compose, initialize_config_module
@@ -17,8 +17,9 @@ from hydra.errors import HydraException, MissingConfigException
 from omegaconf import DictConfig, OmegaConf
 from omegaconf.errors import MissingMandatoryValue, OmegaConfBaseException
 
+from loopzoo._io import check_folder
 from loopzoo._registry import unknown_choice
-from loopzoo.engine.settings import read_settings
+from loopzoo.engine.settings import RunSettings, read_settings
 from loopzoo.harness.errors import ConfigError
 from loopzoo.harness.hydra_private import missing_config, not_in_struct
 from loopzoo.harness.shipped import CONFIG_MODULE, shipped_options
@@ -150,6 +151,37 @@ def _explain(error: Exception, overrides: list[str]) -> ConfigError:
     return ConfigError(message.split("\nConfig search path")[0].strip())
 
 
+def _choices(group: str) -> list[str]:
+    """The names a group choice may take: the shipped files, the installed launchers, and what
+    Hydra's config repository holds (configs a user registered in its ConfigStore or search
+    path)."""
+    names = set(group_options(group))
+    if GlobalHydra.instance().is_initialized():
+        with suppress(HydraException):
+            names.update(GlobalHydra.instance().config_loader().get_group_options(group))
+    return sorted(names)
+
+
+def _check_group_choices(overrides: list[str]) -> None:
+    """Every group choice is one of ``_choices``: never a path (``task=../../x``), so no file
+    outside the configs is ever loaded."""
+    for override in parse_overrides(overrides):
+        group = override.key_or_group
+        if group not in GROUPS or override.is_delete():
+            continue
+        if override.is_sweep_override():
+            try:
+                values = list(override.sweep_string_iterator())
+            except (HydraException, NotImplementedError, TypeError, ValueError):
+                continue  # glob(...) and ranges: Hydra expands them against the repository
+        else:
+            values = [override.value()]
+        known = _choices(group)
+        for value in values:
+            if value is not None and value not in known:
+                raise ConfigError(str(unknown_choice(group, value, known)))
+
+
 def compose_job(overrides: list[str], *, with_hydra: bool = False) -> DictConfig:
     """The config of one run for ``overrides`` (call inside ``composer()``).
 
@@ -158,6 +190,7 @@ def compose_job(overrides: list[str], *, with_hydra: bool = False) -> DictConfig
     node is kept (sweep lists, launcher) and ``finish_config`` is not applied.
     """
     overrides = plain_task_options(list(overrides))
+    _check_group_choices(overrides)
     try:
         cfg = compose("config", overrides=overrides, return_hydra_config=with_hydra)
     except (HydraException, OmegaConfBaseException) as error:
@@ -215,8 +248,36 @@ def _check_names(cfg: DictConfig) -> None:
                               f"with ~{key}?)")
     if not isinstance(cfg.out, str) or not cfg.out:
         raise ConfigError(f"out must be a directory path, got {cfg.out!r}")
-    read_settings(cfg)  # what the engine reads (names, seed, trainer, optimiser, protocol)
+    settings = read_settings(cfg)  # what the engine reads (names, seed, trainer, optim, protocol)
+    _check_out(cfg.out)
     _check_files(cfg)
+    _check_options(settings)
+
+
+def _check_options(settings: RunSettings) -> None:
+    """The task's and the topology's options, checked without data. With ``read_settings`` and
+    the file checks, a config refused here never reaches a run, a lock or the output folder."""
+    from loopzoo.tasks import TASKS
+    from loopzoo.tasks._options import build_options
+    from loopzoo.topologies import parameter_count
+
+    try:
+        build_options(TASKS.get(settings.task).Options, settings.task, settings.task_options)
+    except (ValueError, TypeError) as error:
+        raise ConfigError(f"task {settings.task!r}: {error}") from None
+    try:  # on the meta device: the option checks of the constructor, no memory
+        parameter_count(settings.model, input_size=1, output_size=2, hidden_size=1,
+                        **settings.model_options)
+    except (ValueError, TypeError) as error:
+        raise ConfigError(f"model {settings.model!r}: {error}") from None
+
+
+def _check_out(out: str) -> None:
+    """``out`` is a folder, or can be made as one, that this process may write in."""
+    try:
+        check_folder(out, "out")
+    except ValueError as error:
+        raise ConfigError(str(error)) from None
 
 
 def _check_files(cfg: DictConfig) -> None:

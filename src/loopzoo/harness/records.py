@@ -52,6 +52,7 @@ __all__ = [
     "set_aside",
     "load_records",
     "is_done",
+    "check_out_dir",
     "claim_out_dir",
     "suite_digest",
     "versions",
@@ -203,16 +204,20 @@ def suite_digest(suite: str | None) -> str | None:
     return hashlib.sha256(text).hexdigest()[:12]
 
 
-def claim_out_dir(out: str | Path, suite: str | None) -> dict[str, Any]:
-    """Check ``out`` may take runs of ``suite`` under this schema; write its manifest if new.
+def _manifest_fields(suite: str | None) -> dict[str, Any]:
+    return {"schema": SCHEMA, "config_version": CONFIG_VERSION, "suite": suite,
+            "suite_digest": suite_digest(suite)}
+
+
+def check_out_dir(out: str | Path, suite: str | None) -> dict[str, Any] | None:
+    """Check, without writing, that ``out`` may take runs of ``suite``: its manifest, or None.
 
     Refuses (``OutDirError``) an output directory whose manifest names another record schema,
     config version, suite or suite definition (``suite_digest``), or that holds records but no
     manifest.
     """
     out = Path(out)
-    wanted = {"schema": SCHEMA, "config_version": CONFIG_VERSION, "suite": suite,
-              "suite_digest": suite_digest(suite)}
+    wanted = _manifest_fields(suite)
     manifest_path = out / MANIFEST
     if manifest_path.exists():
         try:
@@ -237,6 +242,14 @@ def claim_out_dir(out: str | Path, suite: str | None) -> dict[str, Any]:
             f"out={out} holds records but no {MANIFEST}: it was not written by this version "
             "of loopzoo; choose another out directory"
         )
-    manifest = {**wanted, "created": utc_now()}
-    atomic_write_json(manifest_path, manifest)
+    return None
+
+
+def claim_out_dir(out: str | Path, suite: str | None) -> dict[str, Any]:
+    """``check_out_dir``, then write the manifest if there is none. Called only when a record is
+    about to be written, so a refused config never claims a folder."""
+    manifest = check_out_dir(out, suite)
+    if manifest is None:
+        manifest = {**_manifest_fields(suite), "created": utc_now()}
+        atomic_write_json(Path(out) / MANIFEST, manifest)
     return manifest

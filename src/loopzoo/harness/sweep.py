@@ -1,9 +1,10 @@
 """``loopzoo sweep``: expand the sweep, check every job, then hand it to Hydra's multirun.
 
 Before any training the whole sweep is composed job by job (so a bad name or key anywhere is
-refused up front), the output directory is claimed and locked, and the progress plan is
-written; the launcher (``hydra/launcher``, joblib by default) then runs ``app.sweep_job`` for
-each job. Jobs whose record is kept on rerun (``records.KEPT_ON_RERUN``) are skipped.
+refused up front), the output directory is checked and locked (its first record claims it),
+and the progress plan is written; the launcher (``hydra/launcher``, joblib by default) then runs
+``app.sweep_job`` for each job. Jobs whose record is kept on rerun (``records.KEPT_ON_RERUN``)
+are skipped.
 """
 
 from __future__ import annotations
@@ -46,6 +47,26 @@ def _sweep_lists(base: DictConfig) -> list[str]:
     return [f"{key}={value}" for key, value in OmegaConf.to_container(params).items()]
 
 
+# Launcher settings that count something (workers, cores, minutes, GB): positive integers.
+_POSITIVE_LAUNCHER_KEYS = ("cpus_per_task", "timeout_min", "mem_gb", "nodes", "tasks_per_node",
+                           "array_parallelism")
+
+
+def _check_launcher(launcher: DictConfig) -> None:
+    """Launcher settings the launcher itself would only reject with a traceback mid-sweep."""
+    n_jobs = launcher.get("n_jobs")
+    if n_jobs is not None and (isinstance(n_jobs, bool) or not isinstance(n_jobs, int)
+                               or n_jobs == 0):
+        raise ConfigError(f"hydra.launcher.n_jobs = {n_jobs!r} is invalid; accepted: a positive "
+                          "number of parallel jobs, or -1 for one per core (-2: all but one, ...)")
+    for key in _POSITIVE_LAUNCHER_KEYS:
+        value = launcher.get(key)
+        if value is not None and (isinstance(value, bool) or not isinstance(value, int)
+                                  or value < 1):
+            raise ConfigError(f"hydra.launcher.{key} = {value!r} is invalid; accepted: a positive "
+                              "integer")
+
+
 def plan_sweep(overrides: list[str]) -> SweepPlan:
     """Expand ``overrides`` plus the suite's sweep lists exactly as Hydra's basic sweeper does
     (the command line wins for a key in both) and compose every job; ``ConfigError`` on any
@@ -57,6 +78,7 @@ def plan_sweep(overrides: list[str]) -> SweepPlan:
     fixed = [o.input_line for o in parsed if not o.is_sweep_override()]
     with composer():
         base = compose_job(fixed, with_hydra=True)
+        _check_launcher(base.hydra.launcher)
         combined = parse_overrides(_sweep_lists(base) + list(overrides))
         job_overrides = split_jobs(combined)
         jobs = []
@@ -100,7 +122,7 @@ def run_sweep(overrides: list[str]) -> int:
     tick = time.perf_counter()
     overrides = plain_task_options(overrides)
     plan = plan_sweep(overrides)
-    records.claim_out_dir(plan.out, plan.suite)
+    records.check_out_dir(plan.out, plan.suite)  # claimed by the first record written
     _check_studies(plan)
     with state.sweep_lock(plan.out):
         _remove_stale_temp_files(plan.out)

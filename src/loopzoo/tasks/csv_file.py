@@ -193,8 +193,11 @@ class CsvClassTask(SequenceClassTask):
                 moved += moved_here
             self._sequences.append(values[order])
             sequence_labels.append(self.class_names.index(labels[first]))
+        self._time_facts = None
         if times is not None:
             table.warn_unsorted(times, moved, len(table))
+            self._time_facts = {"column": times.name, "kind": times.kind,
+                                "rows_out_of_order_in_file": moved}
         self._labels = np.array(sequence_labels, dtype=np.int64)
         if len(self.class_names) < 2:
             raise ValueError(f"{table.path}: column {opts.label!r} has a single class "
@@ -241,5 +244,6 @@ class CsvClassTask(SequenceClassTask):
         return {"source": self._source, "classes": self.class_names,
                 "features": list(self.features), "sequences": len(self._sequences),
                 "sequence_length": {"min": min(lengths), "max": max(lengths)},
-                "scaling": self.input_scaler.describe()}
+                "scaling": self.input_scaler.describe(),
+                "ordered_by": self.options.time or "file order", "time": self._time_facts}
 
