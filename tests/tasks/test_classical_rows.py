@@ -206,3 +206,30 @@ def test_sines_lag_rows_lie_between_the_noise_floor_and_persistence():
         row = task.baselines()[name]
         assert floor < row.metrics["mse_h1"] < persistence, name
         assert row.seed_dependent and row.fit_seconds > 0
+
+
+def _csv(path, values):
+    path.write_text("kw\n" + "".join(f"{v}\n" for v in values), encoding="utf-8")
+    return str(path)
+
+
+def test_a_constant_series_skips_the_state_space_rows_and_keeps_the_others(tmp_path):
+    task = loopzoo.tasks.create("csv", path=_csv(tmp_path / "flat.csv", [5.0] * 120),
+                                target="kw", window=8)
+    rows = task.baselines()
+    for name in ("ets", "arima"):
+        assert rows[name].status == "skipped" and "constant" in rows[name].reason, name
+        assert rows[name].metrics == {}
+    for name in ("persistence", "ar", "ridge", "boosted-trees"):
+        assert rows[name].status == "ok" and rows[name].metrics["mse"] == pytest.approx(0.0)
+
+
+def test_a_season_longer_than_half_the_training_part_skips_the_seasonal_rows(tmp_path):
+    values = [10 + np.sin(i / 3) + 0.1 * (i % 7) for i in range(72)]
+    task = loopzoo.tasks.create("csv", path=_csv(tmp_path / "short.csv", values), target="kw",
+                                window=20, season=20, val_fraction=0.3, test_fraction=0.3)
+    rows = task.baselines()
+    for name in ("ets", "arima"):
+        assert rows[name].status == "skipped", name
+        assert "too short for a 20-step season" in rows[name].reason
+    assert rows["seasonal-naive"].status == "ok" and rows["ridge"].status == "ok"
