@@ -8,6 +8,7 @@ from __future__ import annotations
 import dataclasses
 import zlib
 from abc import ABC, abstractmethod
+from collections.abc import Mapping
 from pathlib import Path
 from typing import Any, ClassVar
 
@@ -190,9 +191,10 @@ class Task(ABC):
         return self._metrics(values, part)
 
     @abstractmethod
-    def baselines(self) -> dict[str, ComparisonRow]:
+    def baselines(self) -> Mapping[str, ComparisonRow]:
         """Classical rows one could ship instead of a topology, each scored by ``score`` on the
-        test split (or skipped with the reason)."""
+        test split (or skipped with the reason). Expensive rows may be computed on first access
+        (``LazyRows``)."""
 
     def bounds(self) -> dict[str, ComparisonRow]:
         """Lines no model can be shipped as: exact optima and noise floors (kind "bound"),

@@ -11,11 +11,11 @@ from __future__ import annotations
 
 import dataclasses
 import time
-from collections.abc import Callable, Iterator
+from collections.abc import Callable, Iterator, Mapping
 from contextlib import contextmanager
 from typing import Any
 
-__all__ = ["KINDS", "ComparisonRow", "Stopwatch", "skipped", "timed"]
+__all__ = ["KINDS", "ComparisonRow", "LazyRows", "Stopwatch", "skipped"]
 
 KINDS = ("baseline", "bound", "reference")
 
@@ -27,7 +27,8 @@ class ComparisonRow:
     metrics: the test metrics (keys of ``task.score``), empty when skipped. kind: "baseline",
     "bound" or "reference". status: "ok" or "skipped" (then ``reason`` says why).
     details: what was chosen on train / val (orders, penalties, model forms), JSON values.
-    fit_seconds: wall time of fitting and selecting (None for rows with nothing to fit).
+    fit_seconds: wall time of fitting, selecting and forecasting the test points (None for
+    rows with nothing to fit).
     seed_dependent: False when the value is the same for every seed (the data and the fit do
     not depend on it), so one value stands for all seeds.
     """
@@ -71,8 +72,20 @@ class Stopwatch:
             self.seconds += time.perf_counter() - start
 
 
-def timed(fit: Callable[[], Any]) -> tuple[Any, float]:
-    """``fit()`` and its wall time in seconds."""
-    start = time.perf_counter()
-    result = fit()
-    return result, time.perf_counter() - start
+class LazyRows(Mapping[str, ComparisonRow]):
+    """Rows computed on first access, each once: asking for one row fits only that row."""
+
+    def __init__(self, makers: dict[str, Callable[[], ComparisonRow]]) -> None:
+        self._makers = makers
+        self._made: dict[str, ComparisonRow] = {}
+
+    def __getitem__(self, name: str) -> ComparisonRow:
+        if name not in self._made:
+            self._made[name] = self._makers[name]()
+        return self._made[name]
+
+    def __iter__(self) -> Iterator[str]:
+        return iter(self._makers)
+
+    def __len__(self) -> int:
+        return len(self._makers)

@@ -2,15 +2,18 @@
 
 from __future__ import annotations
 
-from collections.abc import Sequence
+from collections.abc import Mapping, Sequence
+from typing import Any
 
 import numpy as np
 
 from loopzoo.tasks._base import ClassificationTask, Split, make_split
-from loopzoo.tasks._rows import ComparisonRow
+from loopzoo.tasks._rows import ComparisonRow, LazyRows, Stopwatch
 from loopzoo.tasks._scoring import IMPOSSIBLE_LOGIT
 
 __all__ = ["SequenceClassTask", "encode_sequences", "stratified_parts"]
+
+CLASS_BOOSTING_ROUNDS = 100  # most boosting iterations; the count is chosen on validation
 
 
 def encode_sequences(sequences: Sequence[np.ndarray], labels: np.ndarray,
@@ -63,12 +66,15 @@ class SequenceClassTask(ClassificationTask):
 
     "logistic": scikit-learn LogisticRegression (max_iter=5000, otherwise its defaults) on the
     flattened input sequences of the training part, zero-padded to the longest training
-    sequence (steps of longer test sequences are beyond its reach and cut). "prior": the
-    training class frequencies, add-one smoothed, for every sequence.
+    sequence (steps of longer test sequences are beyond its reach and cut). "boosted-trees":
+    scikit-learn HistGradientBoostingClassifier on the same features, the iteration count (at
+    most ``CLASS_BOOSTING_ROUNDS``) chosen by validation cross-entropy. "prior": the training
+    class frequencies, add-one smoothed, for every sequence.
     """
 
     metric = "accuracy"
     goal = "max"
+    _rows: LazyRows | None = None
 
     @staticmethod
     def _flat(split: Split, steps: int) -> tuple[np.ndarray, np.ndarray]:
@@ -84,22 +90,66 @@ class SequenceClassTask(ClassificationTask):
         logits[split.mask.numpy()] = log_probs
         return logits
 
-    def baselines(self) -> dict[str, ComparisonRow]:
+    def baselines(self) -> Mapping[str, ComparisonRow]:
+        if self._rows is None:
+            self._rows = LazyRows({"logistic": self._logistic_row,
+                                   "boosted-trees": self._boosted_trees_row,
+                                   "prior": self._prior_row})
+        return self._rows
+
+    def _parts(self) -> dict[str, tuple[np.ndarray, np.ndarray]]:
+        """Flattened inputs (padded / cut to the longest training sequence) and labels."""
+        steps = self.split("train").x.shape[1]
+        return {name: self._flat(self.split(name), steps) for name in ("train", "val", "test")}
+
+    def _scored(self, model: Any, log_probs_of: np.ndarray) -> dict[str, float]:
+        """Test metrics of a fitted classifier's (N, fitted classes) log-probabilities; classes
+        absent from the training part keep an impossible logit."""
+        test = self.split("test")
+        log_probs = np.full((len(test), self.output_size), IMPOSSIBLE_LOGIT)
+        log_probs[:, model.classes_] = log_probs_of
+        return self.score(self._at_last_step(test, log_probs), test)
+
+    def _logistic_row(self) -> ComparisonRow:
         from sklearn.linear_model import LogisticRegression
         from threadpoolctl import threadpool_limits
 
-        train, test = self.split("train"), self.split("test")
-        steps = train.x.shape[1]
-        train_x, train_labels = self._flat(train, steps)
-        test_x, _ = self._flat(test, steps)
+        parts = self._parts()
+        watch = Stopwatch()
         # One BLAS thread: threaded BLAS on busy shared cores slows this fit badly
         # (benchmarks/RESULTS.md, "Task baselines").
-        with threadpool_limits(limits=1):
-            model = LogisticRegression(max_iter=5000).fit(train_x, train_labels)
-        log_probs = np.full((len(test), self.output_size), IMPOSSIBLE_LOGIT)
-        # classes absent from the training part keep an impossible logit
-        log_probs[:, model.classes_] = model.predict_log_proba(test_x)
+        with watch.running(), threadpool_limits(limits=1):
+            model = LogisticRegression(max_iter=5000).fit(*parts["train"])
+            log_probs = model.predict_log_proba(parts["test"][0])
+        return ComparisonRow(self._scored(model, log_probs), fit_seconds=watch.seconds)
+
+    def _boosted_trees_row(self) -> ComparisonRow:
+        from sklearn.ensemble import HistGradientBoostingClassifier
+        from threadpoolctl import threadpool_limits
+
+        parts = self._parts()
+        (val_x, val_labels), watch = parts["val"], Stopwatch()
+        with watch.running(), threadpool_limits(limits=1):
+            model = HistGradientBoostingClassifier(
+                max_iter=CLASS_BOOSTING_ROUNDS, early_stopping=False, random_state=0,
+            ).fit(*parts["train"])
+            column = {label: i for i, label in enumerate(model.classes_)}
+            known = np.array([label in column for label in val_labels])
+            picked = np.array([column.get(label, 0) for label in val_labels])
+            rows = np.arange(len(val_labels))
+            losses = [float(-np.mean(np.log(np.clip(p[rows, picked], 1e-12, 1))[known]))
+                      for p in model.staged_predict_proba(val_x)]
+            best = int(np.argmin(losses))
+            probs = next(p for i, p in enumerate(model.staged_predict_proba(parts["test"][0]))
+                         if i == best)
+        details = {"iterations": best + 1, "max_iterations": CLASS_BOOSTING_ROUNDS,
+                   "chosen_on": "validation cross-entropy"}
+        metrics = self._scored(model, np.log(np.clip(probs, 1e-300, 1)))
+        return ComparisonRow(metrics, details=details, fit_seconds=watch.seconds)
+
+    def _prior_row(self) -> ComparisonRow:
+        test = self.split("test")
+        train_labels = self._parts()["train"][1]
         counts = np.bincount(train_labels, minlength=self.output_size) + 1.0
         prior = np.broadcast_to(np.log(counts / counts.sum()), (len(test), self.output_size))
-        return {"logistic": ComparisonRow(self.score(self._at_last_step(test, log_probs), test)),
-                "prior": ComparisonRow(self.score(self._at_last_step(test, prior), test))}
+        return ComparisonRow(self.score(self._at_last_step(test, prior), test))

@@ -6,6 +6,7 @@ from __future__ import annotations
 import dataclasses
 import math
 from abc import abstractmethod
+from collections.abc import Mapping
 from typing import Any
 
 import numpy as np
@@ -19,10 +20,12 @@ from loopzoo.tasks._base import (
     part_bounds,
     shortest_record,
 )
+from loopzoo.tasks._lag_rows import LagData, boosted_trees_row, ridge_row
 from loopzoo.tasks._options import check_fraction, check_int, check_int_list
-from loopzoo.tasks._rows import ComparisonRow
+from loopzoo.tasks._rows import ComparisonRow, LazyRows, Stopwatch
 from loopzoo.tasks._scaling import Standardizer
 from loopzoo.tasks._scoring import regression_metrics
+from loopzoo.tasks._state_space_rows import SeriesHistory, arima_row, ets_row
 
 __all__ = ["SeriesData", "SeriesOptions", "SeriesTask"]
 
@@ -121,6 +124,7 @@ class SeriesTask(RegressionTask):
             for c in self.data.targets for h in self.horizons)
         self._starts: dict[str, np.ndarray] = {}
         self._ar_order: int | None = None
+        self._rows: LazyRows | None = None
 
     def observed_after(self) -> tuple[int | None, ...]:
         """Each target column is also an input: its value h steps ahead (or its change over those
@@ -233,21 +237,75 @@ class SeriesTask(RegressionTask):
         prediction[:, -1] = forecast
         return prediction
 
-    def baselines(self) -> dict[str, ComparisonRow]:
-        context = self._targets_in_window("test")
-        repeat = len(self.horizons)
-        results = {"persistence": np.repeat(context[:, -1, :], repeat, axis=-1)}
-        season = self.options.season
-        if season is not None:
-            # the forecast step minus the smallest whole number of seasons inside the window
-            columns = [context[:, self.options.window - 1 + h - season * math.ceil(h / season), c]
-                       for c in range(len(self.data.targets)) for h in self.horizons]
-            results["seasonal-naive"] = np.stack(columns, axis=-1)
-        results["ar"] = self._ar_forecast(context, self.ar_order())
-        test = self.split("test")
-        return {name: ComparisonRow(self.score_in_data_units(self._full_prediction(forecast), test),
-                                    seed_dependent=False)
-                for name, forecast in results.items()}
+    def baselines(self) -> Mapping[str, ComparisonRow]:
+        if self._rows is None:
+            makers = {"persistence": lambda: self._naive_row(self._persistence())}
+            if self.options.season is not None:
+                makers["seasonal-naive"] = lambda: self._naive_row(self._seasonal_naive())
+            makers.update({
+                "ar": self._ar_row,
+                "ets": lambda: ets_row(self._history()),
+                "arima": lambda: arima_row(self._history()),
+                "ridge": lambda: ridge_row(self._lag_data()),
+                "boosted-trees": lambda: boosted_trees_row(self._lag_data()),
+            })
+            self._rows = LazyRows(makers)
+        return self._rows
+
+    def _naive_row(self, forecast: np.ndarray) -> ComparisonRow:
+        prediction = self._full_prediction(forecast)
+        return ComparisonRow(self.score_in_data_units(prediction, "test"), seed_dependent=False)
+
+    def _persistence(self) -> np.ndarray:
+        last = self._targets_in_window("test")[:, -1, :]
+        return np.repeat(last, len(self.horizons), axis=-1)
+
+    def _seasonal_naive(self) -> np.ndarray:
+        """The forecast step minus the smallest whole number of seasons inside the window."""
+        context, season = self._targets_in_window("test"), self.options.season
+        columns = [context[:, self.options.window - 1 + h - season * math.ceil(h / season), c]
+                   for c in range(len(self.data.targets)) for h in self.horizons]
+        return np.stack(columns, axis=-1)
+
+    def _ar_row(self) -> ComparisonRow:
+        watch = Stopwatch()
+        with watch.running():
+            order = self.ar_order()
+            forecast = self._ar_forecast(self._targets_in_window("test"), order)
+        row = self._naive_row(forecast)
+        chosen_on = "given" if self.options.ar_order else "validation MSE"
+        return dataclasses.replace(row, fit_seconds=watch.seconds,
+                                   details={"order": order, "chosen_on": chosen_on})
+
+    def _history(self) -> SeriesHistory:
+        """The target columns and test forecast origins for the state-space rows."""
+        def score(forecast: np.ndarray) -> dict[str, float]:
+            return self.score_in_data_units(self._full_prediction(forecast), "test")
+
+        return SeriesHistory(
+            values=self.data.values[:, list(self.data.targets)],
+            names=tuple(self.data.columns[c] for c in self.data.targets),
+            train_end=self._bounds["train"][1],
+            origins=self._sample_starts("test") + self.options.window - 1,
+            horizons=self.horizons, season=self.options.season or 1, score=score)
+
+    def _lag_data(self) -> LagData:
+        """Each sample's window as the topologies read it (scaled, differenced if set),
+        flattened, with its scaled targets."""
+        def part(name: str) -> tuple[np.ndarray, np.ndarray]:
+            split = self.split(name)
+            return (split.x.numpy().reshape(len(split), -1).astype(np.float64),
+                    split.y[:, -1].numpy().astype(np.float64))
+
+        def score(name: str, prediction: np.ndarray) -> dict[str, float]:
+            return self.score(self._full_prediction(prediction), name)
+
+        read = "first differences" if self.options.differences else "values"
+        return LagData(train=part("train"), val=part("val"), test=part("test")[0], score=score,
+                       metric=self.metric, seed_dependent=False,
+                       details={"features": f"the {self.options.window}-step window of "
+                                            f"{len(self.data.columns)} column(s), {read}, "
+                                            "scaled as the topologies read it"})
 
     def _ar_params(self, order: int) -> list[np.ndarray]:
         """statsmodels AutoReg (constant + ``order`` lags) per target, fitted on the train part."""

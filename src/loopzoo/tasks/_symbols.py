@@ -6,14 +6,14 @@ from __future__ import annotations
 import lzma
 import math
 from abc import abstractmethod
-from collections.abc import Sequence
+from collections.abc import Mapping, Sequence
 from typing import Any, ClassVar
 
 import numpy as np
 
 from loopzoo.tasks._base import SPLITS, ClassificationTask, Split, make_split, one_hot
 from loopzoo.tasks._ngram import METHODS, NGramModel, contexts
-from loopzoo.tasks._rows import ComparisonRow, Stopwatch
+from loopzoo.tasks._rows import ComparisonRow, LazyRows, Stopwatch
 
 __all__ = ["NGRAM_ORDERS", "NextSymbolTask", "encode_next_symbol"]
 
@@ -51,6 +51,7 @@ class NextSymbolTask(ClassificationTask):
     next_symbol: ClassVar[bool] = True
     metric = "bits_per_char"
     alphabet: tuple[str, ...]
+    _rows: LazyRows | None = None
 
     @property
     def input_size(self) -> int:  # type: ignore[override]
@@ -77,7 +78,14 @@ class NextSymbolTask(ClassificationTask):
         return {name: encode_next_symbol(strings[name][0], len(self.alphabet), strings[name][1])
                 for name in SPLITS}
 
-    def baselines(self) -> dict[str, ComparisonRow]:
+    def baselines(self) -> Mapping[str, ComparisonRow]:
+        if self._rows is None:
+            self._rows = LazyRows({"unigram": lambda: self._frequency_rows()["unigram"],
+                                   "bigram": lambda: self._frequency_rows()["bigram"],
+                                   "ngram": self._ngram_row})
+        return self._rows
+
+    def _frequency_rows(self) -> dict[str, ComparisonRow]:
         train, test = self.split("train"), self.split("test")
         classes = len(self.alphabet)
         mask = train.mask.numpy()
@@ -90,8 +98,7 @@ class NextSymbolTask(ClassificationTask):
         bigram_logits = np.log(pairs / pairs.sum(axis=1, keepdims=True))[test.x.argmax(-1).numpy()]
         varies = self.seed_changes_data
         return {"unigram": ComparisonRow(self.score(unigram_logits, test), seed_dependent=varies),
-                "bigram": ComparisonRow(self.score(bigram_logits, test), seed_dependent=varies),
-                "ngram": self._ngram_row()}
+                "bigram": ComparisonRow(self.score(bigram_logits, test), seed_dependent=varies)}
 
     def _events(self, name: str) -> tuple[np.ndarray, np.ndarray]:
         """Contexts (M, max order - 1) and next symbols (M,) of a split's scored positions."""

@@ -3,21 +3,26 @@
 from __future__ import annotations
 
 import dataclasses
+from collections.abc import Mapping
 
 import numpy as np
 
 from loopzoo.tasks._base import RegressionTask, Split, make_split, sequence_spans, split_generators
 from loopzoo.tasks._catalog import TASKS
+from loopzoo.tasks._lag_rows import LagData, boosted_trees_row, ridge_row
 from loopzoo.tasks._options import (
     SplitSizes,
     check_int,
     check_int_list,
     check_positive_float,
 )
-from loopzoo.tasks._rows import ComparisonRow
+from loopzoo.tasks._rows import ComparisonRow, LazyRows
 from loopzoo.tasks._scaling import Standardizer
 
 __all__ = ["SinesTask"]
+
+LAGS = 32  # the most recent values the lag rows read at each step
+BOOSTING_SAMPLE = 20_000  # training steps the boosted trees see (bounds their fit time)
 
 
 @dataclasses.dataclass(frozen=True)
@@ -57,7 +62,8 @@ class SinesTask(RegressionTask):
     From v_0..v_t predict v_{t+h} for each horizon h, where
     v_t = sum_k a_k sin(2 pi t / P_k + phi_k) + eps_t,  phi_k ~ U[0, 2 pi) per sequence,
     eps_t ~ N(0, noise^2). Every step is scored. Shapes: x (N, T, 1), y (N, T, len(horizons)).
-    Baseline "persistence" (v_t for every horizon); bound "optimal": the noise-free signal, whose
+    Baselines "persistence" (v_t for every horizon), "ridge" and "boosted-trees" on the last
+    ``LAGS`` values at every step (``_lag_rows``); bound "optimal": the noise-free signal, whose
     expected MSE is the noise variance at every horizon (no predictor can know eps_{t+h}).
 
     Example:
@@ -76,6 +82,7 @@ class SinesTask(RegressionTask):
         self.channel_names = tuple(f"h{h}" for h in self.horizons)
         self.scaler = Standardizer.identity(self.output_size)
         self._clean: dict[str, np.ndarray] = {}
+        self._rows: LazyRows | None = None
 
     def observed_after(self) -> tuple[int | None, ...]:
         """v_{t+h} is the input h steps later: each horizon's channel is observed after h."""
@@ -105,11 +112,51 @@ class SinesTask(RegressionTask):
         steps = self.options.length
         return np.stack([series[:, h : h + steps] for h in self.horizons], axis=-1)
 
-    def baselines(self) -> dict[str, ComparisonRow]:
+    def baselines(self) -> Mapping[str, ComparisonRow]:
+        if self._rows is None:
+            self._rows = LazyRows({
+                "persistence": self._persistence_row,
+                "ridge": lambda: ridge_row(self._lag_data()),
+                "boosted-trees": lambda: boosted_trees_row(self._lag_data(BOOSTING_SAMPLE)),
+            })
+        return self._rows
+
+    def _persistence_row(self) -> ComparisonRow:
         test = self.split("test")
         last = test.x[..., 0].numpy().astype(np.float64)
         persistence = np.repeat(last[..., None], len(self.horizons), axis=-1)
-        return {"persistence": ComparisonRow(self.score_in_data_units(persistence, test))}
+        return ComparisonRow(self.score_in_data_units(persistence, test))
+
+    def _lag_data(self, sample: int | None = None) -> LagData:
+        """Every step of every sequence: its last ``LAGS`` values (zero before the sequence's
+        start, with a 0/1 feature per lag saying whether it was observed) -> its targets.
+        ``sample``: at most this many training steps, drawn once with a fixed seed."""
+        lags = min(self.options.length, LAGS)
+
+        def part(name: str) -> tuple[np.ndarray, np.ndarray]:
+            split = self.split(name)
+            values = split.x[..., 0].numpy().astype(np.float64)
+            count, steps = values.shape
+            padded = np.concatenate([np.zeros((count, lags - 1)), values], axis=1)
+            windows = np.lib.stride_tricks.sliding_window_view(padded, lags, axis=1)
+            seen = np.arange(steps)[:, None] >= np.arange(lags - 1, -1, -1)[None, :]
+            seen = np.broadcast_to(seen, windows.shape).astype(np.float64)
+            features = np.concatenate([windows, seen], axis=-1).reshape(count * steps, -1)
+            return features, split.y.numpy().astype(np.float64).reshape(count * steps, -1)
+
+        def score(name: str, prediction: np.ndarray) -> dict[str, float]:
+            split = self.split(name)
+            return self.score(prediction.reshape(*split.mask.shape, -1), split)
+
+        train = part("train")
+        details = {"features": f"the last {lags} values at every step (zero-padded before the "
+                               "start, with an observed flag per lag)"}
+        if sample is not None and len(train[0]) > sample:
+            rows = np.sort(np.random.default_rng(0).choice(len(train[0]), sample, replace=False))
+            train = (train[0][rows], train[1][rows])
+            details["training_steps"] = f"{sample} drawn from {self.split('train').mask.sum()}"
+        return LagData(train=train, val=part("val"), test=part("test")[0], score=score,
+                       metric=self.metric, seed_dependent=True, details=details)
 
     def bounds(self) -> dict[str, ComparisonRow]:
         test = self.split("test")
