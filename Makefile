@@ -4,7 +4,7 @@ VENV := .venv
 BIN := $(VENV)/bin
 STAMP := $(VENV)/.installed
 
-.PHONY: setup demo test test-slow test-all lint clean
+.PHONY: setup demo test test-plain test-slow test-all lint clean
 
 $(STAMP): pyproject.toml
 	$(PY) -m venv $(VENV)
@@ -24,10 +24,14 @@ demo: $(STAMP)
 test: $(STAMP)
 	$(BIN)/python -m pytest -q
 
+# The topologies and the production path again on the plain PyTorch loops (no numba kernels).
+test-plain: $(STAMP)
+	LOOPZOO_KERNELS=torch $(BIN)/python -m pytest -q tests/topologies tests/production
+
 test-slow: $(STAMP)
 	$(BIN)/python -m pytest -q -m slow
 
-test-all: test test-slow
+test-all: test test-plain test-slow
 
 lint: $(STAMP)
 	$(BIN)/ruff check src tests benchmarks examples conf

@@ -14,10 +14,12 @@ def test_benchmark_tables_cover_every_topology() -> None:
     spec = importlib.util.spec_from_file_location("bench_topologies", SCRIPT)
     bench = importlib.util.module_from_spec(spec)
     spec.loader.exec_module(bench)
-    table = bench.speed_table(batch=2, steps=3, inputs=2, hidden=3, outputs=2, rounds=1)
+    table = bench.speed_table(batch=2, steps=3, inputs=2, hidden=3, outputs=2, rounds=1,
+                              plain=True)
     for name in loopzoo.available():
         assert f"| {name}" in table
-    assert "torch.nn.RNN(num_layers=2) + Linear" in table
-    forcing = bench.teacher_forcing_table(batch=2, lengths=[2, 4], inputs=2, hidden=3,
-                                          outputs=2, rounds=1)
-    assert forcing.count("\n") == 3  # header, rule, one row per length
+    assert "| hidden-feedback (plain loops) |" in table
+    assert "| torch.nn.LSTM(2 layers) |" in table and "| torch.nn.RNN(1 layer) |" in table
+    budgets = bench.budget_table(batch=2, steps=4, inputs=2, outputs=2, budgets=[200, 400],
+                                 rounds=1)
+    assert budgets.count("\n") == 5  # title, blank, header, rule, one row per budget

@@ -14,6 +14,7 @@ from torch.autograd import gradcheck
 from torch.func import functional_call
 
 import loopzoo
+from loopzoo.topologies import _kernels
 from loopzoo.topologies._elman import additive_scan
 
 B, T = 2, 5
@@ -78,11 +79,12 @@ def test_gradcheck_with_targets_and_teacher_forcing(
 
 
 @pytest.mark.parametrize(
-    ("nonlinearity", "carry", "scale", "masked"),
-    list(itertools.product(["tanh", "relu"], [False, True], [1.0, 0.5], [False, True])),
+    ("nonlinearity", "carry", "scale", "masked", "compiled"),
+    list(itertools.product(["tanh", "relu"], [False, True], [1.0, 0.5], [False, True],
+                           [True, False])),
 )
-def test_gradcheck_additive_kernel(nonlinearity, carry, scale, masked) -> None:
-    """The hand-written BPTT of the shared kernel, in every mode it supports."""
+def test_gradcheck_additive_kernel(nonlinearity, carry, scale, masked, compiled) -> None:
+    """The hand-written BPTT of the shared kernel, in every mode it supports, compiled and plain."""
     torch.manual_seed(2)
     u = torch.randn(6, 3, 4, dtype=torch.float64, requires_grad=True)
     h0 = torch.randn(3, 4, dtype=torch.float64, requires_grad=True)
@@ -92,4 +94,5 @@ def test_gradcheck_additive_kernel(nonlinearity, carry, scale, masked) -> None:
     def run(u, h0, w):
         return additive_scan(u, h0, w, valid, nonlinearity=nonlinearity, carry=carry, scale=scale)
 
-    assert gradcheck(run, (u, h0, w), eps=1e-6, atol=1e-5, rtol=1e-4)
+    with _kernels.forced(compiled):
+        assert gradcheck(run, (u, h0, w), eps=1e-6, atol=1e-5, rtol=1e-4)

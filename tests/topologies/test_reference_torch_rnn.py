@@ -9,6 +9,7 @@ from __future__ import annotations
 import pytest
 import torch
 from torch import nn
+from torch.nn.utils.rnn import pack_padded_sequence, pad_packed_sequence
 
 import loopzoo
 
@@ -134,3 +135,43 @@ def test_gated_rows_match_torch_layers(name: str, num_layers: int) -> None:
     torch.testing.assert_close(torch.stack(ys, 1), y_ref, **TOL)
     for got, want in zip(carried, state_ref, strict=True):
         torch.testing.assert_close(got, want, **TOL)
+
+
+@pytest.mark.parametrize("num_layers", [1, 2])
+def test_gru_gradients_match_torch_gru(num_layers: int) -> None:
+    """gru runs its own loops (compiled where they apply) on torch.nn.GRU's weights: outputs,
+    final states and every gradient equal torch.nn.GRU's, also with lengths (packed sequences)."""
+    torch.manual_seed(3)
+    model = loopzoo.create(
+        "gru", input_size=IN, output_size=OUT, hidden_size=H, num_layers=num_layers
+    ).double()
+    reference = nn.GRU(IN, H, num_layers=num_layers, batch_first=True).double()
+    readout = nn.Linear(H, OUT).double()
+    model.rnn.load_state_dict(reference.state_dict())
+    model.readout.load_state_dict(readout.state_dict())
+    x = torch.randn(B, T, IN, dtype=torch.float64, requires_grad=True)
+    h0 = torch.randn(num_layers, B, H, dtype=torch.float64, requires_grad=True)
+    lengths = torch.tensor([T, 4, 1])
+    for given in (None, lengths):
+        if given is None:
+            out, h_ref = reference(x, h0)
+        else:
+            packed = pack_padded_sequence(x, given, batch_first=True, enforce_sorted=False)
+            out, h_ref = reference(packed, h0)
+            out, _ = pad_packed_sequence(out, batch_first=True, total_length=T)
+        y_ref = readout(out)
+        if given is not None:  # the zoo's contract: y is 0 past each length
+            y_ref = y_ref.masked_fill((torch.arange(T) >= given[:, None]).unsqueeze(-1), 0.0)
+        y, state = model(x, tuple(h0.unbind(0)), lengths=given)
+        torch.testing.assert_close(y, y_ref, **TOL)
+        torch.testing.assert_close(torch.stack(state), h_ref, **TOL)
+        weights = torch.randn_like(y_ref)
+        grads_ref = torch.autograd.grad(
+            (y_ref * weights).sum() + h_ref.pow(2).sum(),
+            [x, h0, *reference.parameters(), *readout.parameters()],
+        )
+        grads = torch.autograd.grad(
+            (y * weights).sum() + torch.stack(state).pow(2).sum(), [x, h0, *model.parameters()]
+        )
+        for got, want in zip(grads, grads_ref, strict=True):
+            torch.testing.assert_close(got, want, **TOL)

@@ -18,6 +18,7 @@ import torch
 from torch import Tensor, nn
 from torch.autograd.function import FunctionCtx, once_differentiable
 
+from loopzoo.topologies import _kernels
 from loopzoo.topologies._base import activation, project_time_major
 
 __all__ = ["AdditiveRecurrence", "additive_scan"]
@@ -99,7 +100,11 @@ class _AdditiveScan(torch.autograd.Function):
         scale: float,
     ) -> Tensor:
         hs = torch.empty_like(u)
-        if not carry and valid is None and scale == 1.0:
+        ctx.compiled = _kernels.applies(u, h0, weight_hh)
+        if ctx.compiled:
+            zs = torch.empty_like(u)
+            _compiled_forward(u, h0, weight_hh, valid, hs, zs, relu, carry, scale)
+        elif not carry and valid is None and scale == 1.0:
             zs = hs  # h_t == f(a_t): one buffer serves both
             _plain_loop(u, h0, weight_hh, hs, relu)
         else:
@@ -114,35 +119,11 @@ class _AdditiveScan(torch.autograd.Function):
     def backward(ctx: FunctionCtx, grad_hs: Tensor):  # type: ignore[override]
         h0, weight_hh, hs, zs, valid = ctx.saved_tensors
         relu, carry, scale = ctx.relu, ctx.carry, ctx.scale
-        steps, hidden = hs.shape[0], hs.shape[-1]
-        # dL/da_t = dL/dh_t * gain_t, gain = s f'(a) [t valid], for all steps in a few big ops;
-        # f'(a) from f(a): tanh' = 1 - tanh^2, relu' = [relu(a) > 0].
-        gain = (zs > 0).to(zs.dtype) if relu else 1.0 - zs * zs
-        if scale != 1.0:
-            gain.mul_(scale)
-        # The share of dL/dh_t reaching h_{t-1} directly, bypassing f: all of it when carrying,
-        # and past a sequence's length (where h_t = h_{t-1}).
-        bypass = None
-        if valid is not None:
-            gain.mul_(valid)
-            if not carry:
-                bypass = (~valid).to(zs.dtype)
-        grad_a = torch.empty_like(zs)
-        gains, grads_a, upstream = gain.unbind(0), grad_a.unbind(0), grad_hs.unbind(0)
-        bypasses = None if bypass is None else bypass.unbind(0)
-        dh = upstream[steps - 1]
-        for t in range(steps - 1, -1, -1):
-            da = torch.mul(dh, gains[t], out=grads_a[t])
-            if carry:
-                base = dh if t == 0 else dh + upstream[t - 1]
-            elif bypasses is not None:
-                base = dh * bypasses[t] if t == 0 else torch.addcmul(
-                    upstream[t - 1], dh, bypasses[t]
-                )
-            else:
-                base = None if t == 0 else upstream[t - 1]
-            # dL/dh_{t-1} = (everything that reaches it directly) + da_t W.
-            dh = da @ weight_hh if base is None else torch.addmm(base, da, weight_hh)
+        hidden = hs.shape[-1]
+        if ctx.compiled:
+            grad_a, dh = _compiled_backward(grad_hs, zs, weight_hh, valid, relu, carry, scale)
+        else:
+            grad_a, dh = _plain_backward(grad_hs, zs, weight_hh, valid, relu, carry, scale)
         grad_w = None
         if ctx.needs_input_grad[2]:
             # sum_t da_t^T h_{t-1} as one product over all later steps, plus the first step.
@@ -152,6 +133,70 @@ class _AdditiveScan(torch.autograd.Function):
                 hs[:-1].reshape(-1, hidden),
             )
         return grad_a, dh, grad_w, None, None, None, None
+
+
+def _compiled_forward(
+    u: Tensor, h0: Tensor, weight_hh: Tensor, valid: Tensor | None, hs: Tensor, zs: Tensor,
+    relu: bool, carry: bool, scale: float,
+) -> None:
+    loops = _kernels.kernel("additive")
+    with _kernels.blas_threads():
+        loops.forward(
+            u.detach().numpy(), h0.detach().contiguous().numpy(),
+            weight_hh.detach().t().contiguous().numpy(), *_kernels.mask_array(valid),
+            relu, carry, scale, hs.numpy(), zs.numpy(),
+        )
+
+
+def _compiled_backward(
+    grad_hs: Tensor, zs: Tensor, weight_hh: Tensor, valid: Tensor | None,
+    relu: bool, carry: bool, scale: float,
+) -> tuple[Tensor, Tensor]:
+    loops = _kernels.kernel("additive")
+    grad_a = torch.empty_like(zs)
+    with _kernels.blas_threads():
+        dh = loops.backward(
+            grad_hs.contiguous().numpy(), zs.numpy(), weight_hh.detach().contiguous().numpy(),
+            *_kernels.mask_array(valid), relu, carry, scale, grad_a.numpy(),
+        )
+    return grad_a, torch.from_numpy(dh)
+
+
+def _plain_backward(
+    grad_hs: Tensor, zs: Tensor, weight_hh: Tensor, valid: Tensor | None,
+    relu: bool, carry: bool, scale: float,
+) -> tuple[Tensor, Tensor]:
+    """BPTT in torch operations: returns dL/da (T, B, H) and dL/dh0 (B, H)."""
+    steps = zs.shape[0]
+    # dL/da_t = dL/dh_t * gain_t, gain = s f'(a) [t valid], for all steps in a few big ops;
+    # f'(a) from f(a): tanh' = 1 - tanh^2, relu' = [relu(a) > 0].
+    gain = (zs > 0).to(zs.dtype) if relu else 1.0 - zs * zs
+    if scale != 1.0:
+        gain.mul_(scale)
+    # The share of dL/dh_t reaching h_{t-1} directly, bypassing f: all of it when carrying,
+    # and past a sequence's length (where h_t = h_{t-1}).
+    bypass = None
+    if valid is not None:
+        gain.mul_(valid)
+        if not carry:
+            bypass = (~valid).to(zs.dtype)
+    grad_a = torch.empty_like(zs)
+    gains, grads_a, upstream = gain.unbind(0), grad_a.unbind(0), grad_hs.unbind(0)
+    bypasses = None if bypass is None else bypass.unbind(0)
+    dh = upstream[steps - 1]
+    for t in range(steps - 1, -1, -1):
+        da = torch.mul(dh, gains[t], out=grads_a[t])
+        if carry:
+            base = dh if t == 0 else dh + upstream[t - 1]
+        elif bypasses is not None:
+            base = dh * bypasses[t] if t == 0 else torch.addcmul(
+                upstream[t - 1], dh, bypasses[t]
+            )
+        else:
+            base = None if t == 0 else upstream[t - 1]
+        # dL/dh_{t-1} = (everything that reaches it directly) + da_t W.
+        dh = da @ weight_hh if base is None else torch.addmm(base, da, weight_hh)
+    return grad_a, dh
 
 
 def additive_scan(

@@ -20,6 +20,7 @@ from typing import Any
 import torch
 from torch import Tensor, nn
 
+from loopzoo.topologies import _kernels
 from loopzoo.topologies._base import (
     RecurrentTopology,
     State,
@@ -34,6 +35,7 @@ from loopzoo.topologies._base import (
 )
 from loopzoo.topologies._options import NONLINEARITY, Option, boolean, integer
 from loopzoo.topologies._search import Choices, IntegerRange
+from loopzoo.topologies._transition import transition_scan
 
 __all__ = ["DeepTransition"]
 
@@ -112,11 +114,19 @@ class DeepTransition(RecurrentTopology):
         return z
 
     def _sequence(self, x: Tensor, state: State, valid: Tensor | None) -> tuple[Tensor, State]:
+        u, valid_tm = self._project(x.transpose(0, 1)), time_major_mask(valid)
+        if _kernels.applies(u):  # compiled loop (_transition.py); it holds h past lengths
+            hs = transition_scan(
+                u, state[0], self.weight_hh, self.transition, valid_tm,
+                shortcut=self.options["shortcut"], nonlinearity=self.options["nonlinearity"],
+            )
+            return batch_first(self.readout(hs)), (hs[-1],)
+
         def cell(u_t: Tensor, carried: State) -> tuple[Tensor, State]:
             h = self._transition(u_t, carried[0])
             return h, (h,)
 
-        hs, final = scan(cell, self._project(x.transpose(0, 1)), state, time_major_mask(valid))
+        hs, final = scan(cell, u, state, valid_tm)
         return batch_first(self.readout(hs)), final
 
     def step_unchecked(self, x_t: Tensor, state: State) -> tuple[Tensor, State]:

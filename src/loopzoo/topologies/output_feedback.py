@@ -29,6 +29,7 @@ from typing import Any
 import torch
 from torch import Tensor, nn
 
+from loopzoo.topologies import _kernels
 from loopzoo.topologies._activations import batched_tanh
 from loopzoo.topologies._base import (
     RecurrentTopology,
@@ -43,8 +44,10 @@ from loopzoo.topologies._base import (
     time_major_mask,
     uniform_init,
 )
+from loopzoo.topologies._feedback_loop import feedback_scan
 from loopzoo.topologies._options import NONLINEARITY, Option, choice
 from loopzoo.topologies._search import RealRange
+from loopzoo.topologies._teacher_forced import teacher_forced_layer
 
 __all__ = ["OutputFeedback"]
 
@@ -217,11 +220,21 @@ class OutputFeedback(RecurrentTopology):
             return self._teacher_forced(x, state, valid, targets)
         u = project_time_major(x, self.weight_ih, self.bias)  # (T, B, H)
         hidden = self.hidden_size
+        coins = None
         if teacher_forcing > 0.0:
             # One coin per time step and sequence: 1 feeds the target, 0 the model's own output.
             draws = torch.rand(u.shape[0], u.shape[1], 1, device=x.device, dtype=u.dtype)
-            coins = (draws < teacher_forcing).to(u.dtype)
-            u = torch.cat([u, targets.transpose(0, 1), coins], dim=-1)  # (T, B, H + O + 1)
+            coins = draws < teacher_forcing
+        if _kernels.applies(u):  # compiled loop (_feedback_loop.py)
+            ys, line = feedback_scan(
+                u, state[0], self.weight_oh, self.readout,
+                None if coins is None else targets.transpose(0, 1),
+                None if coins is None else coins[..., 0], valid, self.delays,
+                fed_back=self.options["fed_back"], nonlinearity=self.options["nonlinearity"],
+            )
+            return batch_first(ys), (line,)
+        if coins is not None:
+            u = torch.cat([u, targets.transpose(0, 1), coins.to(u.dtype)], dim=-1)  # (T, B, H+O+1)
 
         def cell(step_input: Tensor, carried: State) -> tuple[Tensor, State]:
             y_t = self._readout_step(step_input[:, :hidden], self._fed(carried[0]))
@@ -253,9 +266,17 @@ class OutputFeedback(RecurrentTopology):
             )
         inputs = torch.cat([x, previous], dim=-1).view(batch * steps, -1)  # (B*T, I + O)
         weight = torch.cat([self.weight_ih, self.weight_oh], dim=1)  # (H, I + O)
-        pre = torch.addmm(self.bias, inputs, weight.t())  # (B*T, H)
-        h = torch.relu(pre) if self.options["nonlinearity"] == "relu" else batched_tanh(pre)
-        y = self.readout(h).view(batch, steps, out)
+        nonlinearity = self.options["nonlinearity"]
+        if _kernels.tracing():  # exported / compiled graphs: the same formula in plain ops
+            pre = torch.addmm(self.bias, inputs, weight.t())  # (B*T, H)
+            h = torch.relu(pre) if nonlinearity == "relu" else batched_tanh(pre)
+            y = self.readout(h)
+        else:  # row blocks, no (B*T, H) temporaries (_teacher_forced.py)
+            y = teacher_forced_layer(
+                inputs, weight, self.bias, self.readout.weight, self.readout.bias,
+                nonlinearity=nonlinearity,
+            )
+        y = y.view(batch, steps, out)
         # The final line: the values of the last D valid steps, newest first.
         if valid is None:
             return y, (history[:, -depth:].flip(1).reshape(batch, depth * out),)

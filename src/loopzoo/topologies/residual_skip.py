@@ -22,6 +22,7 @@ from typing import Any
 import torch
 from torch import Tensor, nn
 
+from loopzoo.topologies import _kernels
 from loopzoo.topologies._base import (
     RecurrentTopology,
     State,
@@ -36,6 +37,7 @@ from loopzoo.topologies._base import (
 )
 from loopzoo.topologies._elman import AdditiveRecurrence
 from loopzoo.topologies._options import NONLINEARITY, Option, choice, num_layers, real
+from loopzoo.topologies._residual_gate import gated_residual_scan
 from loopzoo.topologies._search import Choices, IntegerRange, RealRange
 
 __all__ = ["GatedResidualRecurrence", "ResidualSkip"]
@@ -53,7 +55,7 @@ class GatedResidualRecurrence(nn.Module):
         self.weight_ih = nn.Parameter(torch.empty(2 * hidden_size, input_size))
         self.weight_hh = nn.Parameter(torch.empty(2 * hidden_size, hidden_size))
         self.bias = nn.Parameter(torch.empty(2 * hidden_size))
-        self.activation = activation(nonlinearity)
+        self.nonlinearity, self.activation = nonlinearity, activation(nonlinearity)
 
     def _update(self, projected: Tensor, h: Tensor) -> Tensor:
         candidate, gate = (projected + h @ self.weight_hh.t()).chunk(2, dim=-1)
@@ -68,6 +70,11 @@ class GatedResidualRecurrence(nn.Module):
         the final h is the state after each sequence's last valid step.
         """
         projected = project_time_major(x_tm, self.weight_ih, self.bias, time_major=True)
+        if _kernels.applies(projected):  # compiled loop (_residual_gate.py); it holds h
+            hs = gated_residual_scan(
+                projected, h0, self.weight_hh, valid_tm, nonlinearity=self.nonlinearity
+            )
+            return hs, hs[-1]
 
         def cell(u_t: Tensor, state: State) -> tuple[Tensor, State]:
             h = self._update(u_t, state[0])

@@ -1,4 +1,4 @@
-"""lstm and gru: torch's own gated layers (torch.nn.LSTM / torch.nn.GRU) as reference rows.
+"""lstm and gru: the gated layers of torch.nn.LSTM / torch.nn.GRU as reference rows.
 
 LSTM (Hochreiter & Schmidhuber 1997, with forget gate), per layer:
     i, f, g, o = σ(W_i[x;h]), σ(W_f[x;h]), tanh(W_g[x;h]), σ(W_o[x;h])   (biases omitted)
@@ -8,8 +8,11 @@ GRU (Cho et al. 2014), per layer:
 Readout y_t = V h^{top}_t + c.
 
 Shapes: x (B, T, I), y (B, T, O). State: (h_1..h_L) for gru and (h_1..h_L, c_1..c_L) for lstm,
-each (B, H). ``forward`` runs torch's fused layer (packed sequences for ``lengths``); ``step``
-writes the same cell equations with the same weights so it exports as plain tensor algebra.
+each (B, H). The parameters live in a torch.nn.LSTM / torch.nn.GRU. ``forward`` of lstm runs
+torch's fused layer (packed sequences for ``lengths``); ``forward`` of gru runs the same
+equations in compiled loops (``_gru.py``; torch's CPU GRU is several times slower than its
+LSTM) where compiled loops apply, else torch's layer. ``step`` writes the cell equations with
+the same weights so it exports as plain tensor algebra.
 """
 
 from __future__ import annotations
@@ -21,13 +24,17 @@ from torch import Tensor, nn
 from torch.nn.functional import dropout
 from torch.nn.utils.rnn import pack_padded_sequence, pad_packed_sequence
 
+from loopzoo.topologies import _kernels
 from loopzoo.topologies._base import (
     RecurrentTopology,
     State,
+    batch_first,
     make_readout,
     register,
+    time_major_mask,
     uniform_init,
 )
+from loopzoo.topologies._gru import gru_layers
 from loopzoo.topologies._options import DROPOUT, check_dropout_layers, num_layers
 from loopzoo.topologies._search import IntegerRange, RealRange
 
@@ -142,7 +149,7 @@ class LSTM(_TorchGated):
 
 @register("gru")
 class GRU(_TorchGated):
-    """torch.nn.GRU with a linear readout, in the zoo's interface.
+    """The GRU of torch.nn.GRU (compiled loops on its weights) with a linear readout.
 
     Options: num_layers (default 1), dropout between layers (default 0.0).
 
@@ -155,6 +162,14 @@ class GRU(_TorchGated):
 
     layer_class = nn.GRU
     states_per_layer = 1
+
+    def _sequence(self, x: Tensor, state: State, valid: Tensor | None) -> tuple[Tensor, State]:
+        if not _kernels.applies(x):
+            return super()._sequence(x, state, valid)
+        hs, finals = gru_layers(
+            self.rnn, x.transpose(0, 1), state, time_major_mask(valid), self.training
+        )
+        return batch_first(self.readout(hs)), finals
 
     @staticmethod
     def _cell(gates_x: Tensor, gates_h: Tensor, own: State) -> State:
