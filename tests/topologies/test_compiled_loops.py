@@ -161,3 +161,8 @@ def test_teacher_forced_layer_equals_its_autograd_formula(nonlinearity: str, com
                     torch.autograd.grad(want, args, upstream), strict=True):
         torch.testing.assert_close(g, w, atol=1e-10, rtol=1e-8)
     torch.testing.assert_close(got, want, atol=1e-10, rtol=1e-8)
+
+
+def test_compiled_equals_plain_with_a_delay_per_output_channel() -> None:
+    """Output feedback with a different delay per channel reads its state line per channel."""
+    _compare("output-feedback", {"delay": [1, 3]}, torch.float64, {"atol": 1e-10, "rtol": 1e-8})
