@@ -48,6 +48,6 @@ def test_run_multirun_launches_every_job_and_restores_argv(tmp_path: Path):
 
     argv = list(sys.argv)
     run_multirun(job, ["n=1,2,3", f"hydra.sweep.dir={tmp_path / 'multirun'}",
-                       "hydra/job_logging=disabled", "hydra/hydra_logging=disabled"])
+                       "hydra/job_logging=none", "hydra/hydra_logging=none"])
     assert seen == [1, 2, 3]
     assert sys.argv == argv
