@@ -1,5 +1,7 @@
 """One run across two CPU processes (Lightning ddp_spawn, gloo), end to end, in a subprocess:
-pytest itself must not host the process group (see STACK-NOTES.md on the ddp pitfalls)."""
+pytest itself must not host the process group: Lightning's ``ddp`` strategy relaunches the current
+command (here pytest) in each child and leaves MASTER_PORT set, so later tests would fail or hang
+(seen here with Lightning 2.6; the relaunch is how its DDP strategy starts the processes)."""
 
 import json
 import subprocess

@@ -28,7 +28,8 @@ def test_joblib_runs_two_jobs_with_cores_split_between_them(tmp_path):
     stdout, found = sweep(tmp_path, "hydra.launcher.n_jobs=2")
     assert set(found) == {"gru", "lstm"}
     assert all(r["status"] == "ok" for r in found.values()), [r["reason"] for r in found.values()]
-    # threads per job = cores / n_jobs (STACK-NOTES.md: joblib with torch threads split).
+    # threads per job = cores / n_jobs, so parallel jobs never oversubscribe the cores (common
+    # practice for process pools running multi-threaded torch).
     assert {r["versions"]["torch_threads"] for r in found.values()} == {max(1, cores() // 2)}
     assert "[  2/2]" in stdout
 
