@@ -152,3 +152,20 @@ def test_old_records_without_the_new_fields_still_load(built_demo):
     markdown = (built_demo / "report.md").read_text()
     assert "tuning not recorded" in markdown and "artifact not recorded" in markdown
     assert "Tuning budget on" not in markdown
+
+
+def test_a_reference_line_is_shown_apart_never_ranked_or_shipped(tmp_path, demo):
+    # A general-purpose compressor's rate is a reference line, not a model one could ship.
+    records = demo.kiln_records()
+    floor = next(r for r in records if r["model"] == "noise-floor")
+    records.append({**floor, "run_id": "kiln-lzma-s0", "model": "lzma-rate", "kind": "reference",
+                    "metrics": {"test": {"mse": 0.001}}})
+    demo.write_records(tmp_path, records)
+    runs, skipped = load_runs(tmp_path)
+    assert not skipped
+    (task,) = summarise(runs).tasks
+    lzma = _row(task, "lzma-rate")
+    assert lzma.kind == "reference" and lzma.rank is None
+    assert task.best.label == "gru" and "Ship lzma-rate" not in _verdict(task)
+    markdown = build_report(tmp_path)[0].read_text()
+    assert "reference (not ranked)" in markdown

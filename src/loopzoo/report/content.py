@@ -19,6 +19,7 @@ from loopzoo.report.document import (
     table,
 )
 from loopzoo.report.figures import overall_figure, styles_for, task_figures
+from loopzoo.report.loading import UNRANKED
 from loopzoo.report.results import (
     COST_FIELDS,
     LATENCY_FIELD,
@@ -99,7 +100,8 @@ def _yes_no(flag: bool | None) -> str:
     return fmt.MISSING if flag is None else "yes" if flag else "no"
 
 
-KIND_WORDS = {"model": "topology", "baseline": "classical", "bound": "bound"}
+KIND_WORDS = {"model": "topology", "baseline": "classical", "bound": "bound",
+              "reference": "reference"}
 
 
 def _value(row: Row) -> str:
@@ -124,7 +126,8 @@ def _quality_table(task: TaskSummary) -> Table:
                                 ("skipped", "skipped"), ("missing", "ok without metric"))),
         Column("rank", lambda r: fmt.number(r.rank) if r.rank else fmt.MISSING, numeric=True),
         Column("vs best",
-               lambda r: "bound (not ranked)" if r.kind == "bound" else _versus(r.versus_best)),
+               lambda r: (f"{r.kind} (not ranked)" if r.kind in UNRANKED
+                          else _versus(r.versus_best))),
     ]
     if baseline_best:
         columns.append(Column(
@@ -147,7 +150,7 @@ def _centre_words(task: TaskSummary) -> str:
 
 
 def _bound_gap(row: Row, bound: Row, task: TaskSummary) -> str:
-    if row.kind == "bound" or row.interval is None or bound.interval is None:
+    if row.kind in UNRANKED or row.interval is None or bound.interval is None:
         return fmt.MISSING
     return fmt.gap(row.interval.mean, bound.interval.mean, task.scale)
 

@@ -10,6 +10,7 @@ import io
 import math
 from collections.abc import Callable
 
+from loopzoo.report.loading import UNRANKED
 from loopzoo.report.results import (
     COST_FIELDS,
     REACH_FACTORS,
@@ -69,7 +70,7 @@ COLUMNS: tuple[tuple[str, Value], ...] = (
     ("ci95_high", lambda t, r: r.interval and r.interval.high),
     ("std", lambda t, r: r.interval and r.interval.std),
     ("rank", lambda t, r: r.rank),
-    *_comparison("vs_best", lambda r: None if r.kind == "bound" else r.versus_best),
+    *_comparison("vs_best", lambda r: None if r.kind in UNRANKED else r.versus_best),
     *_comparison("vs_best_topology", lambda r: r.versus_pick if r.kind == "model" else None),
     ("bound", _bound_value),
     ("flags", lambda t, r: "; ".join(r.flags)),

@@ -14,6 +14,7 @@ from loopzoo._registry import unknown_choice
 
 __all__ = [
     "KINDS",
+    "UNRANKED",
     "Convergence",
     "DataFile",
     "Tuning",
@@ -30,7 +31,9 @@ __all__ = [
 RECORD_SCHEMA = "loopzoo.run/1"
 STATUSES = ("ok", "diverged", "failed", "skipped")
 # "bound": an exact optimum or noise floor, shown apart and never ranked or recommended.
-KINDS = ("model", "baseline", "bound")
+# "reference": a line that is not a model either (a compressor's rate), shown apart, never ranked.
+KINDS = ("model", "baseline", "bound", "reference")
+UNRANKED = ("bound", "reference")
 
 
 class ReportInputError(ValueError):

@@ -5,6 +5,7 @@ from __future__ import annotations
 
 from collections.abc import Sequence
 
+from loopzoo.report.loading import UNRANKED
 from loopzoo.report.results import LATENCY_FIELD, Comparison, Row
 from loopzoo.report.stats import Difference, equivalence_p, holm, seeds_needed, welch
 
@@ -16,7 +17,7 @@ def competition_ranks(rows: Sequence[Row], goal: str) -> dict[tuple[str, str], i
     ("1224"). The dict is in ranked order: better centre first, then more seeds, then name."""
     sign = 1.0 if goal == "min" else -1.0
     ranked = sorted(
-        (r for r in rows if r.interval and r.kind != "bound"),
+        (r for r in rows if r.interval and r.kind not in UNRANKED),
         key=lambda r: (sign * r.interval.mean, -r.interval.n, r.key),
     )
     ranks: dict[tuple[str, str], int] = {}

@@ -9,7 +9,7 @@ from dataclasses import dataclass, replace
 
 from loopzoo.report.cross_task import cross_task
 from loopzoo.report.labels import option_label, variant_labels
-from loopzoo.report.loading import Run, Skipped
+from loopzoo.report.loading import UNRANKED, Run, Skipped
 from loopzoo.report.ranking import compare_family, competition_ranks, fronts
 from loopzoo.report.results import OverallRow, Row, TaskSummary
 from loopzoo.report.rows import build_row, row_interval
@@ -18,7 +18,7 @@ from loopzoo.report.stats import analysis_scale
 __all__ = ["EQUIVALENCE_MARGIN", "Summary", "summarise"]
 
 EQUIVALENCE_MARGIN = 0.05  # relative margin of the equivalence test (5%: a stated convention)
-ROW_KINDS = ("model", "baseline", "bound")
+ROW_KINDS = ("model", "baseline", "bound", "reference")
 
 
 @dataclass(frozen=True)
@@ -96,7 +96,7 @@ def _summarise_task(
     by_key = {r.key: r for r in rows}
     best = by_key.get(next(iter(ranks), None))
     pick = by_key.get(next((key for key in ranks if key[0] == "model"), None))
-    ranked = [r for r in rows if r.kind != "bound"]
+    ranked = [r for r in rows if r.kind not in UNRANKED]
     versus_best = compare_family(ranked, best, scale, alpha, margin, confidence)
     versus_pick = compare_family([r for r in rows if r.kind == "model"], pick, scale, alpha,
                                  margin, confidence)
