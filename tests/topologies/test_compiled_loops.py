@@ -37,7 +37,8 @@ def _run(model, x, state, params, kwargs, compiled: bool):
 
 
 def _compare(name: str, options: dict, dtype: torch.dtype, tolerance: dict) -> None:
-    assert _kernels.enabled(), "numba is a dependency: the compiled loops must be available"
+    with _kernels.forced(True):  # whatever LOOPZOO_KERNELS says (`make test-plain` sets torch)
+        assert _kernels.enabled(), "numba is a dependency: the compiled loops must be available"
     torch.manual_seed(0)
     model = loopzoo.create(name, input_size=3, output_size=2, hidden_size=5, **options)
     model = model.to(dtype).eval()
@@ -126,8 +127,9 @@ def test_without_numba_the_plain_path_runs_and_warns_once() -> None:
         "torch.save(y, sys.argv[1])\n"
     )
     path = os.path.join(os.environ.get("TMPDIR", "/tmp"), f"loopzoo-plain-{os.getpid()}.pt")
+    environment = {k: v for k, v in os.environ.items() if k != _kernels.ENVIRONMENT_VARIABLE}
     result = subprocess.run([sys.executable, "-c", code, path], capture_output=True, text=True,
-                            timeout=300, check=True)
+                            timeout=300, check=True, env=environment)
     assert result.stdout.split("\n")[0] == "1 True"
     plain = torch.load(path)
     os.remove(path)
