@@ -10,6 +10,7 @@ import pytest
 
 import loopzoo.engine.training as training
 import loopzoo.harness.baselines as baselines
+import loopzoo.harness.sweep as sweep
 from loopzoo.harness import records, state
 from loopzoo.harness.errors import ConfigError, OutDirError
 from loopzoo.harness.sweep import plan_sweep, run_sweep
@@ -65,6 +66,30 @@ def test_a_sweep_records_each_run_once_with_a_progress_line_each(tmp_path, capsy
     assert run_sweep(["model=gru,lstm", "seed=0", f"out={tmp_path}", *TINY]) == 0
     out = capsys.readouterr().out
     assert "2 already recorded" in out and "s: 2 skipped;" in out
+
+
+def test_only_missing_runs_are_launched_and_a_finished_sweep_launches_nothing(tmp_path, capsys,
+                                                                              monkeypatch):
+    launched: list[list[str]] = []
+    real = sweep.run_multirun
+
+    def counting(entry, overrides):
+        launched.append(overrides)
+        real(entry, overrides)
+
+    monkeypatch.setattr(sweep, "run_multirun", counting)
+    assert run_sweep(["model=gru", "seed=0", f"out={tmp_path}", *TINY]) == 0
+    capsys.readouterr()
+    # gru is recorded: of the two jobs only lstm's is launched, as one job of the launcher.
+    assert run_sweep(["model=gru,lstm", "seed=0", f"out={tmp_path}", *TINY]) == 0
+    out = capsys.readouterr().out
+    assert "1 already recorded, 1 to run" in out and "1 ok, 1 skipped" in out
+    assert [line.split()[2] for line in out.splitlines() if line.startswith("[")] == ["lstm"]
+    assert f"+{state.JOB_INDEX}=0" in launched[-1]
+    # Everything recorded: no launcher, no worker started; the same summary as before.
+    assert run_sweep(["model=gru,lstm", "seed=0", f"out={tmp_path}", *TINY]) == 0
+    assert len(launched) == 2
+    assert "2 skipped" in capsys.readouterr().out
 
 
 def test_failed_and_diverged_runs_are_recorded_and_the_sweep_goes_on(tmp_path, monkeypatch,
@@ -162,7 +187,7 @@ def test_jobs_of_an_earlier_killed_sweep_are_not_counted_in_the_next(tmp_path, c
     # An orphaned worker of a killed sweep finishes its job after a new sweep has started:
     # it carries the old sweep's token, so the new plan's count stays right.
     records.claim_out_dir(tmp_path, None)
-    state.write_plan(tmp_path, [(["model=gru"], {})])
+    state.write_plan(tmp_path, [{}])
     monkeypatch.setenv(state.SWEEP_TOKEN, "token-of-a-killed-sweep")
     assert state.count_finished(tmp_path, {"status": "ok"}) is None
     monkeypatch.delenv(state.SWEEP_TOKEN)

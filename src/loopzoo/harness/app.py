@@ -243,12 +243,14 @@ def _run_locked(cfg: DictConfig, out: Path, sweep: bool) -> Outcome:
                    time.perf_counter() - tick, reason)
 
 
-def _planned(out: str, overrides: list[str]) -> DictConfig:
-    """The job's config as ``plan_sweep`` finished it (each job is finished once, up front)."""
-    planned = state.planned_job(out, overrides)
+def _planned(cfg: DictConfig) -> DictConfig:
+    """The job's config as ``plan_sweep`` finished it (each job is finished once, up front);
+    the launcher passes only the job's place in the plan."""
+    index = cfg.get(state.JOB_INDEX)
+    planned = None if index is None else state.planned_job(cfg.out, int(index))
     if planned is None:
-        raise ConfigError(f"job {' '.join(overrides)} is not in the sweep plan of out={out}; "
-                          "start sweeps with `loopzoo sweep`")
+        raise ConfigError(f"job {index} is not in the sweep plan of out={cfg.out}; start sweeps "
+                          "with `loopzoo sweep`")
     job = OmegaConf.create(planned)
     OmegaConf.set_struct(job, True)
     return job
@@ -257,18 +259,18 @@ def _planned(out: str, overrides: list[str]) -> DictConfig:
 def sweep_job(cfg: DictConfig) -> dict[str, Any]:
     """Hydra task function of one sweep job; never raises, so the sweep always goes on."""
     hydra_cfg = HydraConfig.get()
-    overrides = list(hydra_cfg.overrides.task)
     logging.getLogger("lightning").setLevel(logging.WARNING)
     tick = time.perf_counter()
+    job = cfg
     try:
-        job = _planned(cfg.out, overrides)
+        job = _planned(cfg)
         outcome = run_one(job, threads=threads_for_launcher(hydra_cfg.launcher), sweep=True)
     except (ConfigError, OutDirError) as error:
-        outcome = Outcome("-", str(cfg.model.name), str(cfg.task.name), int(cfg.seed), "refused",
+        outcome = Outcome("-", str(job.model.name), str(job.task.name), int(job.seed), "refused",
                           time.perf_counter() - tick, str(error))
     except Exception as error:  # a harness bug: shown, and the sweep goes on
-        log.exception("job %s failed outside training", " ".join(overrides))
-        outcome = Outcome("-", str(cfg.model.name), str(cfg.task.name), int(cfg.seed), "refused",
+        log.exception("job %s failed outside training", cfg.get(state.JOB_INDEX))
+        outcome = Outcome("-", str(job.model.name), str(job.task.name), int(job.seed), "refused",
                           time.perf_counter() - tick, f"{type(error).__name__}: {error}")
     done = state.count_finished(cfg.out, asdict(outcome))
     prefix = f"[{done[0]:>3}/{done[1]}] " if done else ""

@@ -19,11 +19,12 @@ from loopzoo._io import atomic_write_json
 from loopzoo.harness.errors import OutDirError
 
 __all__ = [
-    "SWEEP_TOKEN", "state_dir", "file_lock", "sweep_lock", "write_plan", "planned_job",
-    "read_plan", "count_finished", "end_plan",
+    "SWEEP_TOKEN", "JOB_INDEX", "state_dir", "file_lock", "sweep_lock", "write_plan",
+    "planned_job", "read_plan", "count_finished", "end_plan",
 ]
 
 SWEEP_TOKEN = "LOOPZOO_SWEEP_TOKEN"  # environment variable: the sweep a job was launched by
+JOB_INDEX = "sweep_job"  # the launcher's one sweep key: a job's place in the sweep plan
 
 
 def state_dir(out: str | Path) -> Path:
@@ -60,16 +61,10 @@ def sweep_lock(out: str | Path) -> Iterator[None]:
         yield
 
 
-def _job_key(overrides: list[str]) -> str:
-    # Hydra hands a job only its task overrides: hydra/... and hydra.... ones go to the launcher.
-    task = [o for o in overrides if not o.lstrip("+~").startswith("hydra")]
-    return json.dumps(sorted(task))
-
-
-def write_plan(out: str | Path, jobs: list[tuple[list[str], dict[str, Any]]]) -> str:
+def write_plan(out: str | Path, jobs: list[dict[str, Any]]) -> str:
     """Start a sweep's progress count at 0 of ``len(jobs)``; returns the sweep's token.
 
-    Each job's finished config (``(overrides, config)`` pairs) is kept for ``planned_job``, so a
+    Each job's finished config is kept for ``planned_job`` under its place in ``jobs``, so a
     launched job reads it instead of composing again. The launcher hands the token to each job
     it runs in the environment variable ``SWEEP_TOKEN``; jobs of an earlier sweep whose parent
     was killed (orphaned workers still finishing their runs) carry another token and are not
@@ -77,18 +72,19 @@ def write_plan(out: str | Path, jobs: list[tuple[list[str], dict[str, Any]]]) ->
     """
     token = uuid.uuid4().hex
     folder = state_dir(out)
-    atomic_write_json(folder / "jobs.json", {_job_key(o): config for o, config in jobs})
+    atomic_write_json(folder / "jobs.json", jobs)
     atomic_write_json(folder / "plan.json",
                       {"total": len(jobs), "finished": [], "token": token})
     return token
 
 
-def planned_job(out: str | Path, overrides: list[str]) -> dict[str, Any] | None:
-    """The finished config ``write_plan`` kept for the job of ``overrides``, or None."""
+def planned_job(out: str | Path, index: int) -> dict[str, Any] | None:
+    """The finished config ``write_plan`` kept for job number ``index``, or None."""
     path = Path(out) / ".state" / "jobs.json"
     if not path.exists():
         return None
-    return json.loads(path.read_text(encoding="utf-8")).get(_job_key(overrides))
+    jobs = json.loads(path.read_text(encoding="utf-8"))
+    return jobs[index] if 0 <= index < len(jobs) else None
 
 
 def end_plan(out: str | Path) -> None:

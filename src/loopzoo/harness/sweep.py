@@ -2,9 +2,10 @@
 
 Before any training the whole sweep is composed job by job (so a bad name or key anywhere is
 refused up front), the output directory is checked and locked (its first record claims it),
-and the progress plan is written; the launcher (``hydra/launcher``, joblib by default) then runs
-``app.sweep_job`` for each job. Jobs whose record is kept on rerun (``records.KEPT_ON_RERUN``)
-are skipped.
+and the progress plan is written. Jobs whose record is kept on rerun (``records.KEPT_ON_RERUN``)
+are skipped there, in this process; the launcher (``hydra/launcher``, joblib by default) runs
+``app.sweep_job`` only for the others, each once per distinct run id, so a finished sweep starts
+no worker at all.
 """
 
 from __future__ import annotations
@@ -113,6 +114,31 @@ def _check_studies(plan: SweepPlan) -> None:
             raise ConfigError(f"job {' '.join(overrides)}: {error}") from None
 
 
+def _to_launch(plan: SweepPlan) -> list[int]:
+    """Places in ``plan`` of the jobs to run: the first job of each distinct run id whose record
+    is not kept on rerun."""
+    chosen: dict[str, int] = {}
+    for index, rid in enumerate(plan.run_ids):
+        if rid not in chosen and records.is_done(plan.out, rid) is None:
+            chosen[rid] = index
+    return list(chosen.values())
+
+
+def _launcher_overrides(overrides: list[str], jobs: int, token: str) -> list[str]:
+    """The multirun's arguments for jobs 0..jobs-1 of the written plan: the command line's fixed
+    overrides (launcher choice and settings included), the suite's sweep lists switched off,
+    and one sweep over the plan's places."""
+    fixed = [o.input_line for o in parse_overrides(overrides) if not o.is_sweep_override()]
+    return [
+        *fixed,
+        "hydra.sweeper.params=null",
+        f"+{state.JOB_INDEX}={','.join(str(i) for i in range(jobs))}",
+        # Hydra sets hydra.job.env_set in each job's process before the job runs, also in
+        # reused workers; it is launcher configuration, not part of the job's config.
+        f"+hydra.job.env_set.{state.SWEEP_TOKEN}={token}",
+    ]
+
+
 def run_sweep(overrides: list[str]) -> int:
     """Run the sweep; print one line per finished job and a summary. Returns the exit code:
     0 when every job ran or was skipped (diverged and failed runs are recorded results),
@@ -126,23 +152,24 @@ def run_sweep(overrides: list[str]) -> int:
     _check_studies(plan)
     with state.sweep_lock(plan.out):
         _remove_stale_temp_files(plan.out)
-        ids = plan.run_ids
-        already = sum(records.is_done(plan.out, rid) is not None for rid in ids)
+        launch = _to_launch(plan)
+        distinct = len(set(plan.run_ids))
         print(
-            f"sweep: {len(ids)} runs ({len(set(ids))} distinct), {already} already recorded, "
-            f"out={plan.out}" + (f", suite={plan.suite}" if plan.suite else ""),
+            f"sweep: {len(plan.jobs)} runs ({distinct} distinct), {distinct - len(launch)} "
+            f"already recorded, {len(launch)} to run, out={plan.out}"
+            + (f", suite={plan.suite}" if plan.suite else ""),
             flush=True,
         )
-        token = state.write_plan(plan.out, [(job_overrides, OmegaConf.to_container(job))
-                                            for job_overrides, job in zip(
-                                                plan.overrides, plan.jobs, strict=True)])
-        # Hydra sets hydra.job.env_set in each job's process before the job runs, also in
-        # reused workers; it is launcher configuration, not part of the job's config.
-        run_multirun(hydra_sweep_entry,
-                     [*overrides, f"+hydra.job.env_set.{state.SWEEP_TOKEN}={token}"])
-        finished = (state.read_plan(plan.out) or {}).get("finished", [])
-        state.end_plan(plan.out)
+        finished: list[dict] = []
+        if launch:
+            token = state.write_plan(plan.out,
+                                     [OmegaConf.to_container(plan.jobs[i]) for i in launch])
+            run_multirun(hydra_sweep_entry, _launcher_overrides(overrides, len(launch), token))
+            finished = (state.read_plan(plan.out) or {}).get("finished", [])
+            state.end_plan(plan.out)
     counts = Counter(outcome["status"] for outcome in finished)
+    if distinct > len(launch):
+        counts["skipped"] += distinct - len(launch)
     summary = ", ".join(f"{n} {status}" for status, n in sorted(counts.items()))
     print(f"sweep done in {time.perf_counter() - tick:.0f} s: {summary or 'nothing ran'}; "
           f"records in {records.records_dir(plan.out)}")
@@ -150,7 +177,7 @@ def run_sweep(overrides: list[str]) -> int:
     for outcome in refused:
         print(f"refused: {outcome['model']} {outcome['task']} seed={outcome['seed']}: "
               f"{outcome['reason']}", file=sys.stderr)
-    missing = len(ids) - len(finished)
+    missing = len(launch) - len(finished)
     if missing:
         print(f"{missing} jobs did not report back", file=sys.stderr)
     return 2 if refused or missing else 0
