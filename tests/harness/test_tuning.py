@@ -77,10 +77,20 @@ def test_pruned_and_diverged_trials_use_the_budget_but_are_never_chosen(tmp_path
     cfg = job(tmp_path, "protocol.trials=4")
     outcomes = iter([TrialOutcome(None, "diverged", 10, 0.0), TrialOutcome(0.5, "early_stop", 9, 0),
                      TrialOutcome(None, "pruned", 100, 0.0), TrialOutcome(0.7, "step_cap", 9, 0)])
-    study = ensure_trials(cfg, read_tuning(cfg), lambda c, f, r: next(outcomes))
+
+    def runner(c, f, report):
+        outcome = next(outcomes)
+        if outcome.stopped == "pruned":  # reported validation values, then was stopped
+            report(50, 0.9)
+            report(100, 0.8)
+        return outcome
+
+    study = ensure_trials(cfg, read_tuning(cfg), runner)
     summary = tuning_summary(study, read_tuning(cfg))
     assert summary["completed"] == 2 and summary["pruned"] == 1 and summary["diverged"] == 1
-    assert summary["values"] == [0.5, 0.7] and summary["best_trial"] == 1
+    assert summary["best_trial"] == 1
+    # The expected-best-of-n draws: complete values and the pruned trial's best reported value.
+    assert summary["values"] == [0.5, 0.8, 0.7]
 
 
 def test_a_trial_that_raises_is_marked_failed_and_does_not_count(tmp_path):

@@ -377,13 +377,22 @@ def tuning_summary(study: Any, tuning: TuningSettings) -> dict[str, Any]:
     """The record's ``tuning`` field: budget, space, the chosen values and every trial value.
 
     The chosen values are those of the best complete trial among the first ``trials`` finished
-    ones; ``chosen`` is None when none of them completed.
+    ones; ``chosen`` is None when none of them completed. ``values`` holds, in trial order, the
+    score of every complete trial and the best reported validation value of every pruned one:
+    the draws of the expected-best-of-n curve (Dodge et al. 2019).
     """
     from optuna.trial import TrialState
 
     budget = sorted(_finished(study), key=lambda t: t.number)[: tuning.trials]
     complete = [t for t in budget if t.state == TrialState.COMPLETE]
     sign = 1.0 if tuning.goal == "min" else -1.0
+    # A pruned trial was a draw of the budget too: its score is the best validation value it
+    # reported before it was stopped. Diverged and refused trials have none.
+    scores = [t.value if t.state == TrialState.COMPLETE
+              else min(t.intermediate_values.values(), key=lambda v: sign * v)
+              for t in budget
+              if t.state == TrialState.COMPLETE or (t.user_attrs.get("stopped") == "pruned"
+                                                    and t.intermediate_values)]
     best = min(complete, key=lambda t: (sign * t.value, t.number)) if complete else None
     chosen = dict(best.params) if best is not None else None
     return {
@@ -396,7 +405,7 @@ def tuning_summary(study: Any, tuning: TuningSettings) -> dict[str, Any]:
         "space": describe_space(tuning.space),
         "chosen": chosen,
         "at_bound": at_bound(tuning.space, chosen) if chosen is not None else [],
-        "values": [t.value for t in complete],
+        "values": scores,
         "goal": tuning.goal,
         "study": tuning.study,
         "best_trial": best.number if best is not None else None,
