@@ -3,21 +3,24 @@
 from __future__ import annotations
 
 import difflib
-from collections.abc import Callable
+from collections.abc import Callable, Sequence
 from typing import Generic, TypeVar
 
-__all__ = ["Registry", "unknown_choice"]
+__all__ = ["Registry", "near_names", "unknown_choice"]
 
 T = TypeVar("T")
 
 
+def near_names(value: object, choices: Sequence[str]) -> str:
+    """`` Did you mean 'a', 'b'?`` for the choices closest to ``value`` (difflib), else ""."""
+    near = difflib.get_close_matches(str(value), list(choices), n=3)
+    return f". Did you mean {', '.join(repr(n) for n in near)}?" if near else ""
+
+
 def unknown_choice(field: str, value: object, choices: list[str]) -> ValueError:
-    """Build the error for a value outside ``choices``, naming the field and the nearest choices."""
-    near = difflib.get_close_matches(str(value), choices, n=3)
-    hint = f" Did you mean {', '.join(repr(n) for n in near)}?" if near else ""
-    return ValueError(
-        f"unknown {field} {value!r}; available: {', '.join(choices)}.{hint}"
-    )
+    """Build the error for a name outside ``choices``, naming the field and the nearest names."""
+    hint = near_names(value, choices) or "."
+    return ValueError(f"unknown {field} {value!r}; available: {', '.join(choices)}{hint}")
 
 
 class Registry(Generic[T]):

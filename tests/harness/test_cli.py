@@ -65,7 +65,7 @@ def test_train_writes_one_record_then_skips_it(tmp_path, capsys):
     (["train", "optim.learning_rate=3"], "unknown config key 'optim.learning_rate'"),
     (["train", "task=text"], "task.options.path is required"),
     (["train", "model=gru,lstm"], "use 'loopzoo sweep' for model=gru,lstm"),
-    (["train", "seed=-1"], "seed = -1 is invalid; accepted: a non-negative integer"),
+    (["train", "seed=-1"], "seed = -1 is invalid; accepted: an integer >= 0"),
     (["train", "~seed"], "seed is required"),
     (["train", "modl=gru"], "unknown config key 'modl'. Nearest valid keys: model"),
     (["sweep", "suite=quick,long-lag"], "suite takes one name per sweep"),

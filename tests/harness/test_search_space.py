@@ -59,7 +59,7 @@ BAD = [
     (["protocol.space.lr={low:0.1,high:0.01,log:true}"], r"protocol\.space\.lr.* is inverted"),
     (["protocol.space.lr={low:0.0,high:0.1,log:true}"], r"log range needs low > 0"),
     (["protocol.space.lr={low:-1.0,high:0.1,log:false}"], r"lr holds -1.0; accepted: numbers > 0"),
-    (["+model.tune.dropout={low:0.0,high:1.5}"], r"dropout value must be a real number in \[0"),
+    (["+model.tune.dropout={low:0.0,high:1.5}"], r"dropout value = 1.5 is invalid"),
     (["+model.tune.num_layers={choices:[]}"], r"choices are empty"),
     (["+model.tune.num_layers={low:1}"], r"lacks high"),
     (["+model.tune.num_layers={low:1,high:3,step:2}"], r"unknown keys \['step'\]"),

@@ -40,7 +40,8 @@ def test_the_seeds_of_a_pair_share_one_study_and_train_its_choice(tmp_path, caps
         assert first["tuning"] == second["tuning"]
         tuning = first["tuning"]
         assert tuning["trials"] == 3 and tuning["completed"] + tuning["pruned"] == 3
-        assert len(tuning["values"]) == tuning["completed"]
+        # Pruned trials count among the budget curve's draws when they reported a value.
+        assert tuning["completed"] <= len(tuning["values"]) <= 3
         assert tuning["study"].startswith(f"adding-{first['model']}-")
         # What was trained is the chosen configuration, recorded in the config itself.
         assert first["config"]["optim"]["lr"] == tuning["chosen"]["lr"]

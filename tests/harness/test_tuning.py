@@ -113,7 +113,7 @@ def test_a_trial_that_raises_is_marked_failed_and_does_not_count(tmp_path):
 @pytest.mark.parametrize(("overrides", "message"), [
     (["protocol.trials=0"], r"protocol\.trials = 0 is invalid; accepted: an integer >= 1"),
     (["protocol.trials=2.5"], r"protocol\.trials = 2.5 is invalid"),
-    (["protocol.sampler=grid"], r"protocol\.sampler = 'grid' is invalid; accepted: tpe, random"),
+    (["protocol.sampler=grid"], r"protocol\.sampler = 'grid' is invalid; accepted: one of 'tpe'"),
     (["protocol.pruner=hyperband"], r"protocol\.pruner = 'hyperband' is invalid"),
     (["protocol.storage=nosuchdialect://x/y"], r"protocol\.storage = 'nosuchdialect://x/y' "
                                                r"cannot be opened"),

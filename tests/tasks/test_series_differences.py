@@ -145,7 +145,7 @@ def test_inputs_are_causal_per_step():
 
 @pytest.mark.parametrize("value", ["true", 1, 0, None, 1.0])
 def test_differences_must_be_a_bool(value):
-    with pytest.raises(ValueError, match=r"differences must be true or false, got"):
+    with pytest.raises(ValueError, match=r"differences = .* is invalid; accepted: true or false"):
         loopzoo.tasks.create("sunspots", differences=value)
 
 

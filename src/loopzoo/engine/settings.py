@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import inspect
-import math
 from collections.abc import Mapping
 from dataclasses import dataclass
 from typing import Any
@@ -12,8 +11,9 @@ import lightning as L
 from omegaconf import DictConfig, OmegaConf
 
 import loopzoo
+from loopzoo import _checks as checks
 from loopzoo._registry import unknown_choice
-from loopzoo.engine.errors import ConfigError
+from loopzoo.engine.errors import ConfigError, as_config_errors
 
 __all__ = ["FEEDBACK_SELECTIONS", "TUNING_KEYS", "RunSettings", "read_settings"]
 
@@ -66,27 +66,9 @@ def _section(cfg: Mapping[str, Any], name: str) -> dict[str, Any]:
     return dict(value)
 
 
-def _positive_int(field: str, value: Any, *, allow_none: bool = False) -> int | None:
-    if value is None and allow_none:
-        return None
-    if isinstance(value, bool) or not isinstance(value, int) or value < 1:
-        accepted = "a positive integer" + (" or null" if allow_none else "")
-        raise ConfigError(f"{field} = {value!r} is invalid; accepted: {accepted}")
-    return value
-
-
-def _real(field: str, value: Any, *, low: float, low_open: bool, allow_none: bool = False,
-          high: float = math.inf) -> float | None:
-    if value is None and allow_none:
-        return None
-    ok = isinstance(value, (int, float)) and not isinstance(value, bool) and math.isfinite(value)
-    ok = ok and (value > low if low_open else value >= low) and value <= high
-    if not ok:
-        bound = f"{'>' if low_open else '>='} {low}"
-        bound += f" and <= {high}" if high < math.inf else ""
-        accepted = f"a finite number {bound}" + (" or null" if allow_none else "")
-        raise ConfigError(f"{field} = {value!r} is invalid; accepted: {accepted}")
-    return float(value)
+def _count(field: str, value: Any, *, allow_none: bool = False) -> int | None:
+    """A positive integer (or None where the setting may be switched off)."""
+    return None if value is None and allow_none else checks.integer(field, value, minimum=1)
 
 
 def read_settings(cfg: DictConfig | Mapping[str, Any]) -> RunSettings:
@@ -96,6 +78,11 @@ def read_settings(cfg: DictConfig | Mapping[str, Any]) -> RunSettings:
 
         settings = read_settings(cfg); settings.lr   # 0.003
     """
+    with as_config_errors():
+        return _read_settings(cfg)
+
+
+def _read_settings(cfg: DictConfig | Mapping[str, Any]) -> RunSettings:
     if isinstance(cfg, DictConfig):
         cfg = OmegaConf.to_container(cfg, resolve=True)
     model, task = _section(cfg, "model"), _section(cfg, "task")
@@ -109,11 +96,8 @@ def read_settings(cfg: DictConfig | Mapping[str, Any]) -> RunSettings:
     feedback = model.get("feedback")
     if feedback is not None and not isinstance(feedback, Mapping):
         raise ConfigError(f"model.feedback = {feedback!r} is invalid; accepted: a mapping or null")
-    seed = cfg.get("seed")
-    if isinstance(seed, bool) or not isinstance(seed, int) or seed < 0:
-        raise ConfigError(f"seed = {seed!r} is invalid; accepted: a non-negative integer")
-
-    max_steps = _positive_int("trainer.max_steps", trainer.pop("max_steps", None))
+    seed = checks.integer("seed", cfg.get("seed"), minimum=0)
+    max_steps = _count("trainer.max_steps", trainer.pop("max_steps", None))
     for key, instead in _RESERVED_TRAINER_KEYS.items():
         if key in trainer:
             raise ConfigError(f"trainer.{key} is set by the training engine; use {instead}")
@@ -126,23 +110,20 @@ def read_settings(cfg: DictConfig | Mapping[str, Any]) -> RunSettings:
 
     optim = dict(optim)
     optimizer = optim.pop("name", None)
-    lr = _real("optim.lr", optim.pop("lr", None), low=0.0, low_open=True)
-    weight_decay = _real("optim.weight_decay", optim.pop("weight_decay", 0.0), low=0.0,
-                         low_open=False)
-    clip = _real("optim.grad_clip_norm", optim.pop("grad_clip_norm", None), low=0.0,
-                 low_open=True, allow_none=True)
+    lr = checks.real("optim.lr", optim.pop("lr", None), low=0.0, low_open=True)
+    weight_decay = checks.real("optim.weight_decay", optim.pop("weight_decay", 0.0), low=0.0)
+    clip = optim.pop("grad_clip_norm", None)
+    if clip is not None:
+        clip = checks.real("optim.grad_clip_norm", clip, low=0.0, low_open=True)
 
     protocol = dict(protocol)
     for key in TUNING_KEYS:  # the orchestration's tuning settings (loopzoo.harness.tuning)
         protocol.pop(key, None)
-    val_every = _positive_int("protocol.val_every", protocol.pop("val_every", 50))
-    patience = _positive_int("protocol.patience", protocol.pop("patience", None), allow_none=True)
-    chunk = _positive_int("protocol.tbptt_chunk", protocol.pop("tbptt_chunk", None),
-                          allow_none=True)
-    select = protocol.pop("feedback_select", "free_running")
-    if select not in FEEDBACK_SELECTIONS:
-        raise ConfigError(f"protocol.feedback_select = {select!r} is invalid; accepted: "
-                          f"{', '.join(FEEDBACK_SELECTIONS)}")
+    val_every = _count("protocol.val_every", protocol.pop("val_every", 50))
+    patience = _count("protocol.patience", protocol.pop("patience", None), allow_none=True)
+    chunk = _count("protocol.tbptt_chunk", protocol.pop("tbptt_chunk", None), allow_none=True)
+    select = checks.choice("protocol.feedback_select",
+                           protocol.pop("feedback_select", "free_running"), FEEDBACK_SELECTIONS)
     if protocol:
         raise ConfigError(f"protocol keys {sorted(protocol)} are unknown; accepted: "
                           f"{', '.join(TUNING_KEYS)}, val_every, patience, tbptt_chunk, "
@@ -160,8 +141,8 @@ def read_settings(cfg: DictConfig | Mapping[str, Any]) -> RunSettings:
         feedback=None if feedback is None else dict(feedback),
         task=task["name"],
         task_options=dict(options),
-        batch_size=_positive_int("task.batch_size", task.get("batch_size")),
-        budget=_positive_int("task.budget", task.get("budget")),
+        batch_size=_count("task.batch_size", task.get("batch_size")),
+        budget=_count("task.budget", task.get("budget")),
         seed=seed,
         suite=cfg.get("suite"),
         max_steps=max_steps,

@@ -28,7 +28,7 @@ from loopzoo.diagnostics import gradient_reach
 from loopzoo.engine.build import build_model, build_task
 from loopzoo.engine.costs import PeakMemory, step_latency_ms
 from loopzoo.engine.data import training_loader
-from loopzoo.engine.errors import ConfigError
+from loopzoo.engine.errors import ConfigError, as_config_errors
 from loopzoo.engine.evaluation import NonFinitePrediction, SplitScorer
 from loopzoo.engine.lightning_setup import fit_quietly
 from loopzoo.engine.module import SequenceModule
@@ -55,10 +55,8 @@ def _feedback_plan(settings: RunSettings, model: torch.nn.Module) -> TeacherForc
             f"model.feedback = {settings.feedback} is set but model {settings.model!r} does not "
             "feed back its output; set model.feedback=null"
         )
-    try:
+    with as_config_errors():
         return TeacherForcingPlan.from_options(settings.feedback, total_steps=settings.max_steps)
-    except ValueError as error:
-        raise ConfigError(str(error)) from error
 
 
 def _check_protocol(settings: RunSettings, train_rows: int) -> None:
@@ -90,11 +88,9 @@ class _Run:
         self.measured = self.feeds_back and measured_feedback_exists(task)
         self.select_group = (selected_group(settings.feedback_select, task) if self.feeds_back
                              else "plain")
-        try:
+        with as_config_errors():
             optimizer_factory(settings.optimizer, lr=settings.lr,
                               weight_decay=settings.weight_decay, extra=settings.optimizer_extra)
-        except ValueError as error:
-            raise ConfigError(str(error)) from error
         self.fit_seconds = 0.0
         self.total_steps = 0
         self.val_seconds = 0.0

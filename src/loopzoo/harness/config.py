@@ -20,7 +20,7 @@ from omegaconf.errors import MissingMandatoryValue, OmegaConfBaseException
 from loopzoo._io import check_folder
 from loopzoo._registry import unknown_choice
 from loopzoo.engine.settings import RunSettings, read_settings
-from loopzoo.harness.errors import ConfigError
+from loopzoo.harness.errors import ConfigError, as_config_errors
 from loopzoo.harness.hydra_private import missing_config, not_in_struct
 from loopzoo.harness.shipped import CONFIG_MODULE, shipped_options
 
@@ -59,10 +59,8 @@ def output_kind(task: DictConfig) -> str:
     """
     from loopzoo.tasks import TASKS
 
-    try:
+    with as_config_errors():
         kind = getattr(TASKS.get(task.name), "kind", None)
-    except ValueError as error:
-        raise ConfigError(str(error)) from None
     if kind not in ("regression", "classification"):
         raise ConfigError(f"task {task.name!r} has no fixed kind: set "
                           "model.options.output_kind=real or model.options.output_kind=classes")
@@ -274,10 +272,8 @@ def _check_options(settings: RunSettings) -> None:
 
 def _check_out(out: str) -> None:
     """``out`` is a folder, or can be made as one, that this process may write in."""
-    try:
+    with as_config_errors():
         check_folder(out, "out")
-    except ValueError as error:
-        raise ConfigError(str(error)) from None
 
 
 def _check_files(cfg: DictConfig) -> None:

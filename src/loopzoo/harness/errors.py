@@ -2,9 +2,9 @@
 
 from __future__ import annotations
 
-from loopzoo.engine.errors import ConfigError
+from loopzoo.engine.errors import ConfigError, as_config_errors
 
-__all__ = ["ConfigError", "OutDirError"]
+__all__ = ["ConfigError", "OutDirError", "as_config_errors"]
 
 
 class OutDirError(ValueError):

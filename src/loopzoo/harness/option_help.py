@@ -31,7 +31,9 @@ __all__ = ["OptionHelp", "model_options", "render", "task_options"]
 _MISSING = "???"
 # Values no check accepts: an arbitrary object, a very small and a very large number.
 _PROBES = (object(), -10**18, 10**18)
-_MUST_BE = re.compile(r"^(?:.*? option )?(?P<field>[\w\[\]]+) must be (?P<what>.*?), got ", re.S)
+# loopzoo._checks.invalid's wording: "<field> = <value> is invalid; accepted: <what>[. Did ...]"
+_INVALID = re.compile(r"^(?P<field>[\w\[\]]+) = .*? is invalid; accepted: (?P<what>.*?)"
+                      r"(?:\. Did you mean .*)?$", re.S)
 _ONE_OF = re.compile(r"^unknown (?P<field>\S+) .*?; available: (?P<what>[^.]*)", re.S)
 
 
@@ -54,10 +56,10 @@ def _shipped(group: str, name: str) -> dict[str, Any]:
 
 
 def _accepted(messages: list[str], field: str) -> str:
-    """The "must be ..." parts of refusal messages about ``field``, in order, without repeats."""
+    """The "accepted: ..." parts of refusal messages about ``field``, in order, no repeats."""
     found: list[str] = []
     for message in messages:
-        match = _MUST_BE.match(message) or _ONE_OF.match(message)
+        match = _INVALID.match(message) or _ONE_OF.match(message)
         if match is None or not match.group("field").startswith(field):
             continue
         what = match.group("what").strip()

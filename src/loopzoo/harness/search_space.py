@@ -25,7 +25,7 @@ from typing import Any
 from omegaconf import DictConfig, OmegaConf
 
 from loopzoo._registry import unknown_choice
-from loopzoo.harness.errors import ConfigError
+from loopzoo.harness.errors import ConfigError, as_config_errors
 from loopzoo.topologies import TOPOLOGIES
 from loopzoo.topologies._search import Choices, IntegerRange, RealRange, SearchRange, check_range
 
@@ -99,10 +99,8 @@ def _from_entry(field: str, entry: Any, declared: SearchRange | None) -> SearchR
         integer = both_int and not log and not isinstance(declared, (RealRange, Choices))
         search = (IntegerRange(low, high, hard=hard, only_if=only_if) if integer
                   else RealRange(low, high, log=log, hard=hard, only_if=only_if))
-    try:
+    with as_config_errors():
         check_range(field, search)
-    except ValueError as error:
-        raise ConfigError(str(error)) from None
     return search
 
 
@@ -134,10 +132,8 @@ def _check_against_option(field: str, name: str, search: SearchRange, cfg: dict[
         return
     spec = topology.option_specs[name]
     for value in _endpoints(search):
-        try:
+        with as_config_errors():
             spec.check(f"{field} value", value)
-        except ValueError as error:
-            raise ConfigError(str(error)) from None
 
 
 def _accepted_model_names(topology: Any) -> list[str]:

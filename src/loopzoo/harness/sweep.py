@@ -18,9 +18,10 @@ from pathlib import Path
 
 from omegaconf import DictConfig, OmegaConf
 
+from loopzoo import _checks as checks
 from loopzoo.harness import records, runids, state, tuning
 from loopzoo.harness.config import compose_job, composer, parse_overrides, plain_task_options
-from loopzoo.harness.errors import ConfigError
+from loopzoo.harness.errors import ConfigError, as_config_errors
 from loopzoo.harness.hydra_private import run_multirun, split_jobs
 
 __all__ = ["SweepPlan", "plan_sweep", "run_sweep"]
@@ -61,11 +62,9 @@ def _check_launcher(launcher: DictConfig) -> None:
         raise ConfigError(f"hydra.launcher.n_jobs = {n_jobs!r} is invalid; accepted: a positive "
                           "number of parallel jobs, or -1 for one per core (-2: all but one, ...)")
     for key in _POSITIVE_LAUNCHER_KEYS:
-        value = launcher.get(key)
-        if value is not None and (isinstance(value, bool) or not isinstance(value, int)
-                                  or value < 1):
-            raise ConfigError(f"hydra.launcher.{key} = {value!r} is invalid; accepted: a positive "
-                              "integer")
+        if launcher.get(key) is not None:
+            with as_config_errors():
+                checks.integer(f"hydra.launcher.{key}", launcher.get(key), minimum=1)
 
 
 def plan_sweep(overrides: list[str]) -> SweepPlan:

@@ -32,8 +32,9 @@ from typing import Any
 
 from omegaconf import DictConfig, OmegaConf
 
+from loopzoo import _checks as checks
 from loopzoo.harness import runids, state
-from loopzoo.harness.errors import ConfigError, OutDirError
+from loopzoo.harness.errors import ConfigError, OutDirError, as_config_errors
 from loopzoo.harness.search_space import (
     Tunable,
     apply_values,
@@ -92,13 +93,6 @@ class TrialOutcome:
 
 TrialRunner = Callable[[DictConfig, Path, Callable[[int, float], bool]], TrialOutcome]
 """``(trial config, trial folder, report(step, value) -> stop now) -> TrialOutcome``."""
-
-
-def _positive_trials(value: Any) -> int:
-    if isinstance(value, bool) or not isinstance(value, int) or value < 1:
-        raise ConfigError(f"protocol.trials = {value!r} is invalid; accepted: an integer >= 1, "
-                          "or null to train the configured values without tuning")
-    return value
 
 
 def _study_name(cfg: DictConfig, space: list[Tunable]) -> str:
@@ -166,15 +160,10 @@ def read_tuning(cfg: DictConfig) -> TuningSettings | None:
     protocol = cfg.protocol
     if protocol.get("trials") is None:
         return None
-    trials = _positive_trials(protocol.get("trials"))
-    sampler = protocol.get("sampler", "tpe")
-    if sampler not in SAMPLERS:
-        raise ConfigError(f"protocol.sampler = {sampler!r} is invalid; accepted: "
-                          f"{', '.join(SAMPLERS)}")
-    pruner = protocol.get("pruner", "median")
-    if pruner not in PRUNERS:
-        raise ConfigError(f"protocol.pruner = {pruner!r} is invalid; accepted: "
-                          f"{', '.join(PRUNERS)}")
+    with as_config_errors():  # null trials (above) trains the configured values untuned
+        trials = checks.integer("protocol.trials", protocol.get("trials"), minimum=1)
+        sampler = checks.choice("protocol.sampler", protocol.get("sampler", "tpe"), SAMPLERS)
+        pruner = checks.choice("protocol.pruner", protocol.get("pruner", "median"), PRUNERS)
     url = protocol.get("storage")
     if url is None:
         url = f"sqlite:///{(Path(cfg.out).resolve() / STORAGE_FILE).as_posix()}"

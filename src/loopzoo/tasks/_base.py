@@ -15,7 +15,8 @@ from typing import Any, ClassVar
 import numpy as np
 import torch
 
-from loopzoo.tasks._options import build_options, check_choice, check_seed
+from loopzoo._checks import choice
+from loopzoo.tasks._options import build_options, check_seed
 from loopzoo.tasks._rows import ComparisonRow
 from loopzoo.tasks._scaling import Standardizer
 from loopzoo.tasks._scoring import classification_metrics, regression_metrics
@@ -164,7 +165,7 @@ class Task(ABC):
 
     def split(self, name: str) -> Split:
         """The "train", "val" or "test" part; built once, then cached."""
-        check_choice("split", name, SPLITS)
+        choice("split", name, SPLITS)
         if self._splits is None:
             self._splits = self._make_splits()
         return self._splits[name]

@@ -12,6 +12,7 @@ from typing import Any
 import numpy as np
 import torch
 
+from loopzoo._checks import boolean, integer
 from loopzoo.tasks._base import (
     SPLITS,
     RegressionTask,
@@ -21,7 +22,7 @@ from loopzoo.tasks._base import (
     shortest_record,
 )
 from loopzoo.tasks._lag_rows import LagData, boosted_trees_row, ridge_row
-from loopzoo.tasks._options import check_fraction, check_int, check_int_list
+from loopzoo.tasks._options import check_int_list, check_split_fractions
 from loopzoo.tasks._rows import ComparisonRow, LazyRows, Stopwatch
 from loopzoo.tasks._scaling import Standardizer
 from loopzoo.tasks._scoring import regression_metrics
@@ -41,19 +42,14 @@ class SeriesOptions:
     differences: bool = False  # inputs v[t] - v[t-1], targets v[t+h] - v[t] (for trending series)
 
     def __post_init__(self) -> None:
-        check_int("window", self.window, minimum=1, maximum=1_000_000)
+        integer("window", self.window, minimum=1, maximum=1_000_000)
         object.__setattr__(self, "horizons", check_int_list("horizons", self.horizons))
-        check_fraction("val_fraction", self.val_fraction)
-        check_fraction("test_fraction", self.test_fraction)
-        if self.val_fraction + self.test_fraction >= 1:
-            raise ValueError(f"val_fraction + test_fraction must be below 1, got "
-                             f"{self.val_fraction} + {self.test_fraction}")
+        check_split_fractions(self.val_fraction, self.test_fraction)
         if self.season is not None:
-            check_int("season", self.season, minimum=1, maximum=self.window)
+            integer("season", self.season, minimum=1, maximum=self.window)
         if self.ar_order is not None:
-            check_int("ar_order", self.ar_order, minimum=1, maximum=self.window)
-        if not isinstance(self.differences, bool):
-            raise ValueError(f"differences must be true or false, got {self.differences!r}")
+            integer("ar_order", self.ar_order, minimum=1, maximum=self.window)
+        boolean("differences", self.differences)
 
 
 @dataclasses.dataclass(frozen=True)

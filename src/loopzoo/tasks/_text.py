@@ -7,8 +7,9 @@ from typing import Any
 
 import numpy as np
 
+from loopzoo._checks import integer
 from loopzoo.tasks._base import SPLITS, part_bounds, shortest_record
-from loopzoo.tasks._options import check_fraction, check_int, check_volume
+from loopzoo.tasks._options import check_split_fractions, check_volume
 from loopzoo.tasks._symbols import NextSymbolTask
 
 __all__ = ["CharacterTask", "TextOptions"]
@@ -21,12 +22,8 @@ class TextOptions:
     test_fraction: float = 0.1  # share of the characters at the end
 
     def __post_init__(self) -> None:
-        check_int("length", self.length, minimum=1, maximum=1_000_000)
-        check_fraction("val_fraction", self.val_fraction)
-        check_fraction("test_fraction", self.test_fraction)
-        if self.val_fraction + self.test_fraction >= 1:
-            raise ValueError(f"val_fraction + test_fraction must be below 1, got "
-                             f"{self.val_fraction} + {self.test_fraction}")
+        integer("length", self.length, minimum=1, maximum=1_000_000)
+        check_split_fractions(self.val_fraction, self.test_fraction)
 
 
 class CharacterTask(NextSymbolTask):

@@ -15,9 +15,10 @@ from typing import Any
 
 import numpy as np
 
+from loopzoo._checks import invalid
 from loopzoo.tasks._base import SPLITS, Split, split_generators
 from loopzoo.tasks._catalog import TASKS
-from loopzoo.tasks._options import check_fraction, check_str_list
+from loopzoo.tasks._options import check_split_fractions, check_str_list
 from loopzoo.tasks._scaling import Standardizer
 from loopzoo.tasks._sequence_classes import SequenceClassTask, encode_sequences, stratified_parts
 from loopzoo.tasks._series import SeriesData, SeriesOptions, SeriesTask
@@ -30,12 +31,12 @@ def _check_path(path: object) -> None:
     if path is None:
         raise ValueError("path=<a CSV or Parquet file with a header row> is required")
     if not isinstance(path, str | os.PathLike):
-        raise ValueError(f"path must be a file path, got {path!r}")
+        raise invalid("path", path, "a file path")
 
 
 def _check_optional_name(field: str, value: object) -> None:
     if value is not None and (not isinstance(value, str) or not value):
-        raise ValueError(f"{field} must be a column name, got {value!r}")
+        raise invalid(field, value, "a column name")
 
 
 def _check_disjoint(**groups: tuple[str, ...]) -> None:
@@ -134,11 +135,7 @@ class CsvClassOptions:
         _check_optional_name("time", self.time)
         if self.features is not None:
             object.__setattr__(self, "features", check_str_list("features", self.features))
-        check_fraction("val_fraction", self.val_fraction)
-        check_fraction("test_fraction", self.test_fraction)
-        if self.val_fraction + self.test_fraction >= 1:
-            raise ValueError(f"val_fraction + test_fraction must be below 1, got "
-                             f"{self.val_fraction} + {self.test_fraction}")
+        check_split_fractions(self.val_fraction, self.test_fraction)
         _check_disjoint(label=(self.label,), sequence=(self.sequence,),
                         time=(self.time,) if self.time else (), features=self.features or ())
 

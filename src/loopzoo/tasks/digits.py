@@ -7,9 +7,10 @@ from typing import Any
 
 import numpy as np
 
+from loopzoo._checks import choice
 from loopzoo.tasks._base import SPLITS, Split, split_generators
 from loopzoo.tasks._catalog import TASKS
-from loopzoo.tasks._options import check_choice, check_fraction
+from loopzoo.tasks._options import check_split_fractions
 from loopzoo.tasks._sequence_classes import SequenceClassTask, encode_sequences, stratified_parts
 
 __all__ = ["DigitsTask"]
@@ -22,12 +23,8 @@ class DigitsOptions:
     test_fraction: float = 0.2  # share of each class held out for the test, drawn with the seed
 
     def __post_init__(self) -> None:
-        check_choice("read", self.read, ["rows", "pixels"])
-        check_fraction("val_fraction", self.val_fraction)
-        check_fraction("test_fraction", self.test_fraction)
-        if self.val_fraction + self.test_fraction >= 1:
-            raise ValueError(f"val_fraction + test_fraction must be below 1, got "
-                             f"{self.val_fraction} + {self.test_fraction}")
+        choice("read", self.read, ["rows", "pixels"])
+        check_split_fractions(self.val_fraction, self.test_fraction)
 
 
 @TASKS.register("digits")

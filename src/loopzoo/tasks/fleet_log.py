@@ -12,9 +12,9 @@ from datetime import datetime, timedelta
 
 import numpy as np
 
+from loopzoo._checks import integer
 from loopzoo.tasks._base import split_generators
 from loopzoo.tasks._catalog import TASKS
-from loopzoo.tasks._options import check_int
 from loopzoo.tasks._text import CharacterTask, TextOptions
 
 __all__ = ["FleetLogTask", "generate_fleet_log"]
@@ -69,7 +69,7 @@ class FleetLogOptions(TextOptions):
 
     def __post_init__(self) -> None:
         super().__post_init__()
-        check_int("lines", self.lines, minimum=1, maximum=100_000)
+        integer("lines", self.lines, minimum=1, maximum=100_000)
 
 
 @TASKS.register("fleet-log")

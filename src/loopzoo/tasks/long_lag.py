@@ -11,6 +11,7 @@ import math
 
 import numpy as np
 
+from loopzoo._checks import integer
 from loopzoo.tasks._base import (
     ClassificationTask,
     RegressionTask,
@@ -21,7 +22,7 @@ from loopzoo.tasks._base import (
     split_generators,
 )
 from loopzoo.tasks._catalog import TASKS
-from loopzoo.tasks._options import SplitSizes, check_int
+from loopzoo.tasks._options import SplitSizes
 from loopzoo.tasks._rows import ComparisonRow
 from loopzoo.tasks._scaling import Standardizer
 from loopzoo.tasks._scoring import IMPOSSIBLE_LOGIT
@@ -35,7 +36,7 @@ class AddingOptions(SplitSizes):
 
     def __post_init__(self) -> None:
         super().__post_init__()
-        check_int("length", self.length, minimum=2, maximum=100_000)
+        integer("length", self.length, minimum=2, maximum=100_000)
         self.check_volume("adding", self.length, channels=4)  # x 2, y 1, mask 1
 
 
@@ -102,7 +103,7 @@ class CopyOptions(SplitSizes):
 
     def __post_init__(self) -> None:
         super().__post_init__()
-        check_int("length", self.length, minimum=1, maximum=100_000)
+        integer("length", self.length, minimum=1, maximum=100_000)
         self.check_volume("copy", self.length + 20, channels=12)  # x 10, y 1, mask 1
 
 

@@ -6,6 +6,7 @@ import dataclasses
 
 import numpy as np
 
+from loopzoo._checks import integer
 from loopzoo.tasks._base import (
     ClassificationTask,
     Split,
@@ -14,7 +15,7 @@ from loopzoo.tasks._base import (
     split_generators,
 )
 from loopzoo.tasks._catalog import TASKS
-from loopzoo.tasks._options import SplitSizes, check_int
+from loopzoo.tasks._options import SplitSizes
 from loopzoo.tasks._rows import ComparisonRow
 from loopzoo.tasks._scoring import IMPOSSIBLE_LOGIT
 
@@ -27,7 +28,7 @@ class ParityOptions(SplitSizes):
 
     def __post_init__(self) -> None:
         super().__post_init__()
-        check_int("length", self.length, minimum=1, maximum=100_000)
+        integer("length", self.length, minimum=1, maximum=100_000)
         self.check_volume("parity", self.length, channels=3)  # x 1, y 1, mask 1
 
 

@@ -12,6 +12,7 @@ import math
 
 import numpy as np
 
+from loopzoo._checks import boolean
 from loopzoo.tasks._base import SPLITS, sequence_spans, split_generators
 from loopzoo.tasks._catalog import TASKS
 from loopzoo.tasks._options import SplitSizes
@@ -51,8 +52,7 @@ class ReberOptions(SplitSizes):
 
     def __post_init__(self) -> None:
         super().__post_init__()
-        if not isinstance(self.embedded, bool):
-            raise ValueError(f"embedded must be true or false, got {self.embedded!r}")
+        boolean("embedded", self.embedded)
 
 
 @TASKS.register("reber")

@@ -7,15 +7,11 @@ from collections.abc import Mapping
 
 import numpy as np
 
+from loopzoo._checks import integer, real
 from loopzoo.tasks._base import RegressionTask, Split, make_split, sequence_spans, split_generators
 from loopzoo.tasks._catalog import TASKS
 from loopzoo.tasks._lag_rows import LagData, boosted_trees_row, ridge_row
-from loopzoo.tasks._options import (
-    SplitSizes,
-    check_int,
-    check_int_list,
-    check_positive_float,
-)
+from loopzoo.tasks._options import SplitSizes, check_int_list
 from loopzoo.tasks._rows import ComparisonRow, LazyRows
 from loopzoo.tasks._scaling import Standardizer
 
@@ -35,22 +31,22 @@ class SinesOptions(SplitSizes):
 
     def __post_init__(self) -> None:
         super().__post_init__()
-        check_int("length", self.length, minimum=1, maximum=100_000)
+        integer("length", self.length, minimum=1, maximum=100_000)
         object.__setattr__(self, "horizons", check_int_list("horizons", self.horizons))
         periods = self.periods
         if isinstance(periods, int | float):
             periods = [periods]
         object.__setattr__(self, "periods", tuple(
-            check_positive_float(f"periods[{i}]", p) for i, p in enumerate(periods)))
+            real(f"periods[{i}]", p, low=0.0, low_open=True) for i, p in enumerate(periods)))
         amplitudes = self.amplitudes
         if isinstance(amplitudes, int | float):
             amplitudes = [amplitudes]
         object.__setattr__(self, "amplitudes", tuple(
-            check_positive_float(f"amplitudes[{i}]", a) for i, a in enumerate(amplitudes)))
+            real(f"amplitudes[{i}]", a, low=0.0, low_open=True) for i, a in enumerate(amplitudes)))
         if len(self.amplitudes) != len(self.periods):
             raise ValueError(f"amplitudes needs one value per period ({len(self.periods)}), "
                              f"got {len(self.amplitudes)}")
-        check_positive_float("noise", self.noise, allow_zero=True)
+        real("noise", self.noise, low=0.0)
         # x 1, y one per horizon, the mask, and the noise-free signal kept for the optimum
         self.check_volume("sines", self.length + max(self.horizons), len(self.horizons) + 3)
 

@@ -6,6 +6,7 @@ import dataclasses
 import os
 from pathlib import Path
 
+from loopzoo._checks import invalid
 from loopzoo.tasks._catalog import TASKS
 from loopzoo.tasks._files import read_input_file
 from loopzoo.tasks._text import CharacterTask, TextOptions
@@ -22,7 +23,7 @@ class TextFileOptions(TextOptions):
         if self.path is None:
             raise ValueError("text needs path=<a UTF-8 text file>")
         if not isinstance(self.path, str | os.PathLike):
-            raise ValueError(f"path must be a file path, got {self.path!r}")
+            raise invalid("path", self.path, "a file path")
 
 
 def read_text(path: Path) -> tuple[str, dict[str, object]]:

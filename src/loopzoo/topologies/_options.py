@@ -2,11 +2,13 @@
 
 from __future__ import annotations
 
-import math
+import functools
 import numbers
 from collections.abc import Callable, Mapping
 from dataclasses import dataclass
 from typing import Any
+
+from loopzoo import _checks as checks
 
 __all__ = [
     "DROPOUT",
@@ -35,68 +37,34 @@ class Option:
     help: str
 
 
-def _is_int(value: Any) -> bool:
-    return isinstance(value, numbers.Integral) and not isinstance(value, bool)
-
-
 def is_real(value: Any) -> bool:
     """A real number (Python or NumPy), not a bool."""
     return isinstance(value, numbers.Real) and not isinstance(value, bool)
 
 
 def integer(minimum: int, maximum: int | None = None) -> Check:
-    """Accept a Python int in [minimum, maximum]."""
-    accepted = f"an integer >= {minimum}" if maximum is None else (
-        f"an integer in [{minimum}, {maximum}]"
-    )
-
-    def check(name: str, value: Any) -> int:
-        if not _is_int(value) or value < minimum or (maximum is not None and value > maximum):
-            raise ValueError(f"{name} must be {accepted}, got {value!r}")
-        return int(value)
-
-    return check
+    """Accept an integer in [minimum, maximum] (the rules of ``loopzoo._checks.integer``)."""
+    return functools.partial(_named, checks.integer, minimum=minimum, maximum=maximum)
 
 
 def real(low: float, high: float, *, low_open: bool = False, high_open: bool = False) -> Check:
     """Accept a finite real number in the interval from low to high (ends open or closed)."""
-    interval = f"{'(' if low_open else '['}{low}, {high}{')' if high_open else ']'}"
-
-    def check(name: str, value: Any) -> float:
-        ok = is_real(value) and math.isfinite(value)
-        if ok:
-            above = value > low if low_open else value >= low
-            below = value < high if high_open else value <= high
-            ok = above and below
-        if not ok:
-            raise ValueError(f"{name} must be a real number in {interval}, got {value!r}")
-        return float(value)
-
-    return check
+    return functools.partial(_named, checks.real, low=low, high=high, low_open=low_open,
+                             high_open=high_open)
 
 
 def choice(*choices: str) -> Check:
     """Accept one of the given strings."""
-
-    def check(name: str, value: Any) -> str:
-        if value not in choices:
-            raise ValueError(
-                f"{name} must be one of {', '.join(repr(c) for c in choices)}, got {value!r}"
-            )
-        return value
-
-    return check
+    return functools.partial(_named, checks.choice, choices=choices)
 
 
 def boolean() -> Check:
     """Accept True or False only (not 0/1, not strings)."""
+    return functools.partial(_named, checks.boolean)
 
-    def check(name: str, value: Any) -> bool:
-        if not isinstance(value, bool):
-            raise ValueError(f"{name} must be True or False, got {value!r}")
-        return value
 
-    return check
+def _named(check: Callable[..., Any], name: str, value: Any, **rules: Any) -> Any:
+    return check(name, value, **rules)
 
 
 size = integer(1)

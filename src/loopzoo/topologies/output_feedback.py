@@ -23,12 +23,12 @@ last D fed values o_{t-1}, ..., o_{t-D}, newest first (D = 1: just o_{t-1}).
 
 from __future__ import annotations
 
-import numbers
 from typing import Any
 
 import torch
 from torch import Tensor, nn
 
+from loopzoo import _checks as checks
 from loopzoo.topologies import _kernels
 from loopzoo.topologies._activations import batched_tanh
 from loopzoo.topologies._base import (
@@ -60,14 +60,14 @@ def _check_delay(name: str, value: Any) -> int | list[int]:
     accepted = f"an integer in [1, {_MAX_DELAY}] or a non-empty list of them (one per output)"
 
     def one(item: Any) -> int:
-        if (not isinstance(item, numbers.Integral) or isinstance(item, bool)
-                or not 1 <= item <= _MAX_DELAY):
-            raise ValueError(f"{name} must be {accepted}, got {value!r}")
-        return int(item)
+        try:
+            return checks.integer(name, item, minimum=1, maximum=_MAX_DELAY)
+        except ValueError:
+            raise checks.invalid(name, value, accepted) from None
 
     if isinstance(value, (list, tuple)):
         if not value:
-            raise ValueError(f"{name} must be {accepted}, got {value!r}")
+            raise checks.invalid(name, value, accepted)
         delays = [one(item) for item in value]
         # One delay for every channel is stored as that number.
         return delays[0] if len(set(delays)) == 1 else delays
