@@ -5,6 +5,7 @@ import subprocess
 import sys
 
 import pytest
+from support.tiny import tiny
 
 import loopzoo
 from loopzoo import cli
@@ -12,10 +13,7 @@ from loopzoo.harness import records
 from loopzoo.harness.config import group_options
 from loopzoo.harness.shipped import shipped_options
 
-TINY = ["task=adding", "task.options.length=5", "task.options.train_size=16",
-        "task.options.val_size=8", "task.options.test_size=8", "task.batch_size=8",
-        "task.budget=300", "trainer.max_steps=3", "protocol.val_every=1", "protocol.trials=null",
-        "trainer.enable_progress_bar=false"]
+TINY = tiny("trainer.max_steps=3", "trainer.enable_progress_bar=false")
 
 
 def test_list_names_every_topology_task_suite_and_launcher_with_a_line_each(capsys):

@@ -5,14 +5,12 @@ import errno
 import os
 
 import pytest
+from support.tiny import tiny
 
 import loopzoo
 from loopzoo import cli
 
-TINY = ["task=adding", "task.options.length=5", "task.options.train_size=16",
-        "task.options.val_size=8", "task.options.test_size=8", "task.batch_size=8",
-        "task.budget=300", "trainer.max_steps=2", "protocol.val_every=1", "protocol.trials=null",
-        "trainer.enable_progress_bar=false"]
+TINY = tiny("trainer.enable_progress_bar=false")
 
 
 def one_paragraph(capsys, *expected):

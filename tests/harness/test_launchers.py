@@ -6,12 +6,11 @@ import subprocess
 import sys
 
 import pytest
+from support.tiny import tiny
 
 from loopzoo.harness.config import cores
 
-TINY = ["task=adding", "task.options.length=5", "task.options.train_size=32",
-        "task.options.val_size=8", "task.options.test_size=8", "task.batch_size=8",
-        "task.budget=300", "trainer.max_steps=4", "protocol.val_every=2", "protocol.trials=null"]
+TINY = tiny("task.options.train_size=32", "trainer.max_steps=4", "protocol.val_every=2")
 
 
 def sweep(out, *overrides):

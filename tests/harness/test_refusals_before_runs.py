@@ -3,14 +3,12 @@ name shipped (or registered) configs only, never a path, and a refused config ne
 output folder (issue 15, items 3 and 6)."""
 
 import pytest
+from support.tiny import tiny
 
 from loopzoo import cli
 from loopzoo.harness import records
 
-TINY = ["task=adding", "task.options.length=5", "task.options.train_size=16",
-        "task.options.val_size=8", "task.options.test_size=8", "task.batch_size=8",
-        "task.budget=300", "trainer.max_steps=2", "protocol.val_every=1", "protocol.trials=null",
-        "trainer.enable_progress_bar=false"]
+TINY = tiny("trainer.enable_progress_bar=false")
 
 
 @pytest.fixture()

@@ -7,6 +7,7 @@ SIGKILL are in the slow tests (test_launchers.py, test_sweep_resume.py).
 import json
 
 import pytest
+from support.tiny import tiny
 
 import loopzoo.engine.training as training
 import loopzoo.harness.baselines as baselines
@@ -15,10 +16,7 @@ from loopzoo.harness import records, state
 from loopzoo.harness.errors import ConfigError, OutDirError
 from loopzoo.harness.sweep import plan_sweep, run_sweep
 
-TINY = ["task=adding", "task.options.length=5", "task.options.train_size=16",
-        "task.options.val_size=8", "task.options.test_size=8", "task.batch_size=8",
-        "task.budget=300", "trainer.max_steps=2", "protocol.val_every=1",
-        "protocol.trials=null", "hydra/launcher=basic"]
+TINY = tiny("hydra/launcher=basic")
 
 
 def model_records(out):

@@ -2,14 +2,13 @@
 exactly once and leaves no unreadable file (issue 4). Slow: it launches real sweeps."""
 
 import json
-import os
-import signal
 import subprocess
 import sys
 import time
 from pathlib import Path
 
 import pytest
+from support.processes import kill_when, start_sweep
 
 from loopzoo.harness.sweep import plan_sweep
 
@@ -23,24 +22,6 @@ def model_records(out: Path) -> list[Path]:
     folder = out / "records"
     return [p for p in folder.glob("adding-*.json") if "memoryless" not in p.name] \
         if folder.exists() else []
-
-
-def start(out: Path) -> subprocess.Popen:
-    return subprocess.Popen([sys.executable, "-m", "loopzoo.cli", "sweep", *SWEEP, f"out={out}"],
-                            start_new_session=True, stdout=subprocess.DEVNULL,
-                            stderr=subprocess.DEVNULL)
-
-
-def kill_when(process: subprocess.Popen, ready, timeout: float = 300.0) -> bool:
-    """SIGKILL the sweep's whole process group (launcher workers included) once ``ready()``."""
-    deadline = time.monotonic() + timeout
-    while time.monotonic() < deadline and process.poll() is None and not ready():
-        time.sleep(0.05)
-    finished = process.poll() is not None
-    if not finished:
-        os.killpg(process.pid, signal.SIGKILL)
-    process.wait()
-    return not finished
 
 
 @pytest.mark.slow
@@ -58,7 +39,7 @@ def test_a_killed_sweep_restarted_records_every_run_exactly_once(tmp_path):
     killed = 0
     for point in kill_points:
         begun = time.monotonic()
-        killed += kill_when(start(out), point)
+        killed += kill_when(start_sweep(SWEEP, out), point, timeout=300.0)
     assert killed >= 2, "the sweep finished before it could be killed; make the runs longer"
 
     final = subprocess.run([sys.executable, "-m", "loopzoo.cli", "sweep", *SWEEP, f"out={out}"],

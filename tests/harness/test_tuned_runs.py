@@ -5,15 +5,15 @@ import shlex
 import sqlite3
 
 import pytest
+from support.tiny import tiny
 
 from loopzoo.cli import main
 from loopzoo.harness import records
 from loopzoo.harness.sweep import run_sweep
 
-TINY = ["task=adding", "task.options.length=5", "+task.options.train_size=32",
-        "+task.options.val_size=16", "+task.options.test_size=16", "task.batch_size=8",
-        "task.budget=300", "trainer.max_steps=6", "protocol.val_every=2", "protocol.trials=3",
-        "hydra/launcher=basic"]
+TINY = tiny("task.options.train_size=32", "task.options.val_size=16",
+            "task.options.test_size=16", "trainer.max_steps=6", "protocol.val_every=2",
+            "protocol.trials=3", "hydra/launcher=basic")
 
 
 def model_records(out):

@@ -3,15 +3,13 @@ only the trials that were running, never repeats a finished trial, and ends with
 budgeted number of finished trials (issue 9). Slow: it launches real sweeps."""
 
 import json
-import os
-import signal
 import sqlite3
 import subprocess
 import sys
-import time
 from pathlib import Path
 
 import pytest
+from support.processes import kill_when, start_sweep
 
 TRIALS = 8
 SWEEP = ["model=gru", "seed=0,1", "task=adding", "task.options.length=8",
@@ -45,23 +43,6 @@ def finished(found):
     return {n: t for n, t in found.items() if t[0] in ("COMPLETE", "PRUNED")}
 
 
-def start(out: Path) -> subprocess.Popen:
-    return subprocess.Popen([sys.executable, "-m", "loopzoo.cli", "sweep", *SWEEP, f"out={out}"],
-                            start_new_session=True, stdout=subprocess.DEVNULL,
-                            stderr=subprocess.DEVNULL)
-
-
-def kill_when(process: subprocess.Popen, ready, timeout: float = 600.0) -> bool:
-    deadline = time.monotonic() + timeout
-    while time.monotonic() < deadline and process.poll() is None and not ready():
-        time.sleep(0.1)
-    alive = process.poll() is None
-    if alive:
-        os.killpg(process.pid, signal.SIGKILL)
-    process.wait()
-    return alive
-
-
 @pytest.mark.slow
 def test_a_killed_study_continues_without_repeating_a_finished_trial(tmp_path):
     out = tmp_path / "out"
@@ -75,7 +56,8 @@ def test_a_killed_study_continues_without_repeating_a_finished_trial(tmp_path):
 
     snapshots = []
     for count in (2, 5):
-        assert kill_when(start(out), running_after(count)), "the sweep ended before the kill"
+        killed = kill_when(start_sweep(SWEEP, out), running_after(count), timeout=600.0, poll=0.1)
+        assert killed, "the sweep ended before the kill"
         snapshots.append(trials(out))
     lost = {n for n, t in snapshots[-1].items() if t[0] == "RUNNING"}
     assert lost, "no trial was running at the kill"
