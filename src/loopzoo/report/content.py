@@ -196,24 +196,18 @@ def _exposure_table(task: TaskSummary) -> Table | None:
     rows = [r for r in task.rows if r.exposure is not None]
     if not rows:
         return None
-    return Table(
+    columns = [
+        Column("topology", lambda r: r.label),
+        Column("feedback (mode / schedule / fed back)",
+               lambda r: "; ".join(r.exposure.settings) or fmt.MISSING),
+        Column("one-step, measured outputs", lambda r: fmt.interval(r.exposure.teacher_forced),
+               numeric=True),
+        Column("free-running", lambda r: fmt.interval(r.exposure.free_running), numeric=True),
+        Column("gap (free − measured)", lambda r: fmt.interval(r.exposure.gap), numeric=True),
+    ]
+    return table(
         f"Exposure bias on {task.label}: one-step with measured outputs against free-running "
-        f"test {task.metric}",
-        ("topology", "feedback (mode / schedule / fed back)", "one-step, measured outputs",
-         "free-running", "gap (free − measured)"),
-        tuple(
-            (
-                r.label,
-                "; ".join(r.exposure.settings) or fmt.MISSING,
-                fmt.interval(r.exposure.teacher_forced),
-                fmt.interval(r.exposure.free_running),
-                fmt.interval(r.exposure.gap),
-            )
-            for r in rows
-            if r.exposure is not None
-        ),
-        (False, False, True, True, True),
-    )
+        f"test {task.metric}", columns, rows)
 
 
 def _budget_table(task: TaskSummary) -> Table | None:

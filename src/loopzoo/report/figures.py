@@ -79,6 +79,12 @@ def _figure(width: float, height: float, panels: int) -> Iterator[tuple[MplFigur
         yield figure, list(figure.subplots(1, panels, squeeze=False)[0])
 
 
+def _log_y_if_wide(axes: Axes, values: Sequence[float]) -> None:
+    """A log y axis when positive values span more than 20x (curves that fall by decades)."""
+    if values and min(values) > 0 and max(values) / min(values) > 20:
+        axes.set_yscale("log")
+
+
 def _png(figure: MplFigure) -> bytes:
     buffer = io.BytesIO()
     figure.savefig(buffer, format="png", metadata={"Software": None})
@@ -126,8 +132,7 @@ def _learning_curves(task: TaskSummary, styles: dict[str, Style]) -> Figure | No
             axes.plot(steps, means, color=style.colour, linestyle=style.dash, marker=style.marker,
                       markersize=4, markevery=max(1, len(steps) // 8),
                       label=f"{row.label} ({len(_ok(row))} seeds)")
-        if min(all_values) > 0 and max(all_values) / min(all_values) > 20:
-            axes.set_yscale("log")
+        _log_y_if_wide(axes, all_values)
         axes.set_xlabel("training step (optimiser updates)")
         axes.set_ylabel(f"validation {task.metric} (task units)")
         axes.set_title(f"{task.label}: learning curves, mean over seeds, band = min to max")
@@ -292,8 +297,7 @@ def _budget_figure(task: TaskSummary, styles: dict[str, Style]) -> Figure | None
             axes.plot(budgets, curve.expected, color=style.colour, linestyle=style.dash,
                       marker=style.marker, markersize=4, markevery=max(1, curve.trials // 8),
                       label=f"{curve.label} ({curve.trials} trials)")
-        if min(values) > 0 and max(values) / min(values) > 20:
-            axes.set_yscale("log")
+        _log_y_if_wide(axes, values)
         axes.set_xscale("log", base=2)
         axes.xaxis.set_major_formatter(ScalarFormatter())
         axes.set_xlabel("tuning budget (trials, log scale)")
