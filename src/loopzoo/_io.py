@@ -1,4 +1,4 @@
-"""Atomic file writes: a reader never sees a half-written result file."""
+"""Atomic writes (a reader never sees a half-written result file); JSON objects read back."""
 
 from __future__ import annotations
 
@@ -10,7 +10,7 @@ from pathlib import Path
 from typing import Any
 
 __all__ = ["atomic_write_bytes", "atomic_write_text", "atomic_write_json", "check_folder",
-           "json_safe"]
+           "json_safe", "read_json_object"]
 
 
 def atomic_write_bytes(path: str | os.PathLike[str], data: bytes) -> None:
@@ -76,3 +76,15 @@ def check_folder(path: str | os.PathLike[str], name: str) -> None:
     if not os.access(existing, os.W_OK | os.X_OK):
         raise ValueError(f"{name} {str(folder)!r}: {str(existing)!r} is not writable by this "
                          "user; choose a writable folder")
+
+
+def read_json_object(path: str | os.PathLike[str]) -> dict[str, Any]:
+    """The JSON object in the UTF-8 file ``path``; ValueError saying why it is not one
+    (unreadable, not UTF-8, not JSON, or JSON of another type)."""
+    try:
+        value = json.loads(Path(path).read_text(encoding="utf-8"))
+    except (OSError, UnicodeDecodeError, json.JSONDecodeError) as error:
+        raise ValueError(str(error)) from None
+    if not isinstance(value, dict):
+        raise ValueError(f"a JSON {type(value).__name__}, not an object")
+    return value

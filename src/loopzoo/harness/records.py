@@ -19,7 +19,6 @@ A record holds ``schema``, ``run_id``, ``kind`` ("model" | "baseline" | "bound" 
 from __future__ import annotations
 
 import hashlib
-import json
 import os
 import sys
 from datetime import datetime, timezone
@@ -27,7 +26,7 @@ from importlib import resources
 from pathlib import Path
 from typing import Any
 
-from loopzoo._io import atomic_write_json, json_safe
+from loopzoo._io import atomic_write_json, json_safe, read_json_object
 from loopzoo.engine.provenance import utc_now, versions
 from loopzoo.harness.errors import OutDirError
 from loopzoo.harness.shipped import CONFIG_MODULE
@@ -146,11 +145,9 @@ def read_record(path: str | Path) -> dict[str, Any]:
     """
     path = Path(path)
     try:
-        record = json.loads(path.read_text(encoding="utf-8"))
-    except (OSError, UnicodeDecodeError, json.JSONDecodeError) as error:
+        record = read_json_object(path)
+    except ValueError as error:
         raise DamagedRecord(f"{path}: not a readable run record ({error})") from None
-    if not isinstance(record, dict):
-        raise DamagedRecord(f"{path}: not a run record (a JSON {type(record).__name__})")
     if record.get("schema") != SCHEMA:
         raise OutDirError(f"{path}: record schema {record.get('schema')!r}, expected {SCHEMA!r}")
     return record
@@ -221,11 +218,9 @@ def check_out_dir(out: str | Path, suite: str | None) -> dict[str, Any] | None:
     manifest_path = out / MANIFEST
     if manifest_path.exists():
         try:
-            manifest = json.loads(manifest_path.read_text(encoding="utf-8"))
-        except (OSError, UnicodeDecodeError, json.JSONDecodeError) as error:
+            manifest = read_json_object(manifest_path)
+        except ValueError as error:
             raise OutDirError(f"{manifest_path}: unreadable manifest ({error})") from None
-        if not isinstance(manifest, dict):
-            raise OutDirError(f"{manifest_path}: unreadable manifest (not a JSON object)")
         for key, value in wanted.items():
             if manifest.get(key) == value:
                 continue

@@ -378,13 +378,9 @@ def _fill(model: torch.nn.Module, tensors: Mapping[str, Any], source: Path) -> N
         if not isinstance(tensor, torch.Tensor):
             kind = type(tensor).__name__
             raise ArtifactError(f"{source}: entry {name!r} is a {kind}, not a tensor")
-        if tensor.shape != reference.shape or tensor.dtype != reference.dtype:
-            raise ArtifactError(
-                f"{source}: tensor {name!r} is {_dtype_name(tensor.dtype)}{list(tensor.shape)}; "
-                f"the model expects {_dtype_name(reference.dtype)}{list(reference.shape)}"
-            )
-        if tensor.is_floating_point() and not bool(torch.isfinite(tensor).all()):
-            raise ArtifactError(f"{source}: tensor {name!r} contains NaN or infinite values")
+        problem = tensor_mismatch(tensor, reference)
+        if problem is not None:
+            raise ArtifactError(f"{source}: tensor {name!r} {problem}")
     model.load_state_dict(dict(tensors), strict=True)
     model.eval()
 
@@ -423,6 +419,17 @@ def _json_checked(field: str, value: dict[str, Any]) -> dict[str, Any]:
             f"{field} must be JSON-serialisable with finite numbers (str, int, float, bool, "
             f"None, lists, dicts): {error}"
         ) from None
+
+
+def tensor_mismatch(tensor: torch.Tensor, reference: torch.Tensor) -> str | None:
+    """What is wrong with a loaded ``tensor`` that should be like ``reference`` (shape, dtype,
+    finite values), as the end of a sentence naming it; None when nothing is."""
+    if tensor.shape != reference.shape or tensor.dtype != reference.dtype:
+        return (f"is {_dtype_name(tensor.dtype)}{list(tensor.shape)}; expected "
+                f"{_dtype_name(reference.dtype)}{list(reference.shape)}")
+    if tensor.is_floating_point() and not bool(torch.isfinite(tensor).all()):
+        return "contains NaN or infinite values"
+    return None
 
 
 def _dtype_name(dtype: torch.dtype) -> str:

@@ -25,6 +25,7 @@ from safetensors.torch import load as safetensors_load
 from safetensors.torch import save as safetensors_save
 
 from loopzoo._registry import unknown_choice
+from loopzoo.serve.artifacts import tensor_mismatch
 from loopzoo.serve.preprocessing import NextSymbolReading, SequenceClassReading, SeriesReading
 
 __all__ = ["StreamRunner", "STREAM_STATE_FORMAT"]
@@ -231,13 +232,9 @@ class StreamRunner:
         state = []
         for name, reference in zip(expected, self._initial, strict=True):
             tensor = tensors[name]
-            if tensor.shape != reference.shape or tensor.dtype != reference.dtype:
-                raise ValueError(
-                    f"state data for stream {stream_id!r}: {name} is {tensor.dtype}"
-                    f"{list(tensor.shape)}; expected {reference.dtype}{list(reference.shape)}"
-                )
-            if tensor.is_floating_point() and not bool(torch.isfinite(tensor).all()):
-                raise ValueError(f"state data for stream {stream_id!r}: {name} has NaN or inf")
+            problem = tensor_mismatch(tensor, reference)
+            if problem is not None:
+                raise ValueError(f"state data for stream {stream_id!r}: {name} {problem}")
             state.append(tensor)
         self._states[stream_id] = tuple(state)
         self._history[stream_id], self._count[stream_id] = [], 0
