@@ -32,7 +32,7 @@ def test_every_declared_range_holds_only_values_the_option_accepts(name):
 
 @pytest.mark.parametrize("name", loopzoo.available())
 def test_the_space_is_the_optimiser_ranges_then_the_topology_declaration(name):
-    space = search_space(job(f"model={name}"))
+    space = search_space(job(f"model={name}", "task=sines"))  # sines: targets observed later
     names = [t.name for t in space]
     assert names[:2] == ["lr", "weight_decay"]
     assert names[2:] == list(TOPOLOGIES.get(name).tunable)
@@ -73,12 +73,25 @@ def test_bad_names_and_ranges_are_refused_naming_the_field(overrides, message):
 
 
 def test_feedback_schedule_keys_are_tunable_only_on_a_feedback_topology():
-    space = search_space(job("model=output-feedback"))
+    space = search_space(job("model=output-feedback", "task=sines"))
     assert [t.path for t in space][2:] == ["model.feedback.k"]
     with pytest.raises(ConfigError, match=r"model\.tune\.feedback\.k: unknown tunable name"):
         search_space(job("model=gru", "+model.tune.feedback={k:{low:5,high:50}}"))
     with pytest.raises(ConfigError, match=r"value 0.5 is refused.*k >= 1"):
-        search_space(job("model=output-feedback", "+model.tune.feedback={k:{low:0.5,high:50}}"))
+        search_space(job("model=output-feedback", "task=sines",
+                         "+model.tune.feedback={k:{low:0.5,high:50}}"))
+
+
+@pytest.mark.parametrize("task", ["adding", "digits"])
+def test_the_schedule_is_not_searched_where_targets_are_never_observed(task):
+    # The run trains free running there (nothing observed to teacher-force), so the schedule's
+    # keys would be a search dimension without effect.
+    assert not loopzoo.tasks.TASKS.get(task).targets_observed
+    space = search_space(job("model=output-feedback", f"task={task}"))
+    assert [t.name for t in space] == ["lr", "weight_decay"]
+    with pytest.raises(ConfigError, match=r"model\.tune\.feedback\.k: task .* never observes"):
+        search_space(job("model=output-feedback", f"task={task}",
+                         "+model.tune.feedback={k:{low:5,high:50}}"))
 
 
 def test_a_conditional_range_is_searched_only_when_its_condition_holds():

@@ -236,6 +236,8 @@ def test_observability_is_declared_per_target_and_true_of_the_data(task_pair):
     assert len(delays) == (task.output_size if task.kind == "regression" else 1)
     assert all(d is None or (isinstance(d, int) and d >= 1) for d in delays)
     assert task.observability() == task.describe()["observable"]
+    # The class attribute the harness reads without building the task says the same.
+    assert type(task).targets_observed == all(d is not None for d in delays)
     split = task.split("train")
     steps = split.mask.shape[1]
     for channel, delay in enumerate(delays):

@@ -26,6 +26,7 @@ from omegaconf import DictConfig, OmegaConf
 
 from loopzoo._registry import unknown_choice
 from loopzoo.harness.errors import ConfigError, as_config_errors
+from loopzoo.tasks import TASKS
 from loopzoo.topologies import TOPOLOGIES
 from loopzoo.topologies._search import Choices, IntegerRange, RealRange, SearchRange, check_range
 
@@ -190,6 +191,16 @@ def search_space(cfg: DictConfig | Mapping[str, Any]) -> list[Tunable]:
             error = unknown_choice(f"tunable name of model {topology.topology!r}", name, accepted)
             raise ConfigError(f"model.tune.{name}: {error}")
     names = [*topology.tunable, *(n for n in tune if n not in topology.tunable)]
+    task = data["task"]["name"]
+    if not TASKS.get(task).targets_observed:
+        # Nothing is teacher-forced where targets are never observed (the run trains free
+        # running), so the teacher-forcing schedule has no effect there: not searched.
+        asked = [n for n in tune if n.startswith("feedback.") and tune[n] is not None]
+        if asked:
+            raise ConfigError(f"model.tune.{asked[0]}: task {task!r} never observes its targets, "
+                              "so output feedback trains free running and the teacher-forcing "
+                              f"schedule has no effect; accepted: model.tune.{asked[0]}=null")
+        names = [n for n in names if not n.startswith("feedback.")]
     for name in names:
         declared = topology.tunable.get(name)
         if name in tune:

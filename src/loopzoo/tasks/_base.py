@@ -153,6 +153,9 @@ class Task(ABC):
     seed_changes_data: ClassVar[bool] = True
     # Options naming the user's input files; their content is part of a run's identity.
     file_options: ClassVar[tuple[str, ...]] = ()
+    # True when every target is measured some steps later (``observed_after`` has no None), so
+    # output feedback can be teacher-forced on observations; readable without building the task.
+    targets_observed: ClassVar[bool] = False
 
     input_size: int
     output_size: int

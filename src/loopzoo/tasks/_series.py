@@ -122,6 +122,8 @@ class SeriesTask(RegressionTask):
         self._ar_order: int | None = None
         self._rows: LazyRows | None = None
 
+    targets_observed = True
+
     def observed_after(self) -> tuple[int | None, ...]:
         """Each target column is also an input: its value h steps ahead (or its change over those
         h steps) is observed h steps later, per channel (target column, then horizon)."""

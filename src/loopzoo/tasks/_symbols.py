@@ -65,6 +65,8 @@ class NextSymbolTask(ClassificationTask):
         """The alphabet (one class per symbol); each string is read whole from the zero state."""
         return {"kind": "next-symbol", "alphabet": list(self.alphabet), "chunk": None}
 
+    targets_observed = True
+
     def observed_after(self) -> tuple[int | None, ...]:
         """The next symbol is the next step's input: observed one step later."""
         return (1,)

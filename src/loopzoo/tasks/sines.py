@@ -80,6 +80,8 @@ class SinesTask(RegressionTask):
         self._clean: dict[str, np.ndarray] = {}
         self._rows: LazyRows | None = None
 
+    targets_observed = True
+
     def observed_after(self) -> tuple[int | None, ...]:
         """v_{t+h} is the input h steps later: each horizon's channel is observed after h."""
         return tuple(self.horizons)

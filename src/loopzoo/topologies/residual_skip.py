@@ -112,7 +112,7 @@ class ResidualSkip(RecurrentTopology):
     tunable = {
         "mode": Choices(("scaled", "gated")),
         "scale": RealRange(0.03, 1.0, log=True, hard=("high",), only_if={"mode": ("scaled",)}),
-        "num_layers": IntegerRange(1, 3, hard=("low",)),
+        "num_layers": IntegerRange(1, 4, hard=("low",)),
     }
 
     def __init__(self, **sizes_and_options: Any) -> None:
