@@ -113,12 +113,12 @@ def _check_studies(plan: SweepPlan) -> None:
             raise ConfigError(f"job {' '.join(overrides)}: {error}") from None
 
 
-def _to_launch(plan: SweepPlan) -> list[int]:
-    """Places in ``plan`` of the jobs to run: the first job of each distinct run id whose record
-    is not kept on rerun."""
+def _to_launch(out: Path, ids: list[str]) -> list[int]:
+    """Places in the plan (whose run ids are ``ids``) of the jobs to run: the first job of each
+    distinct run id whose record is not kept on rerun."""
     chosen: dict[str, int] = {}
-    for index, rid in enumerate(plan.run_ids):
-        if rid not in chosen and records.is_done(plan.out, rid) is None:
+    for index, rid in enumerate(ids):
+        if rid not in chosen and records.is_done(out, rid) is None:
             chosen[rid] = index
     return list(chosen.values())
 
@@ -151,8 +151,9 @@ def run_sweep(overrides: list[str]) -> int:
     _check_studies(plan)
     with state.sweep_lock(plan.out):
         _remove_stale_temp_files(plan.out)
-        launch = _to_launch(plan)
-        distinct = len(set(plan.run_ids))
+        ids = plan.run_ids  # hashes every user file once
+        launch = _to_launch(plan.out, ids)
+        distinct = len(set(ids))
         print(
             f"sweep: {len(plan.jobs)} runs ({distinct} distinct), {distinct - len(launch)} "
             f"already recorded, {len(launch)} to run, out={plan.out}"
