@@ -16,6 +16,19 @@ from loopzoo.harness.shipped import shipped_options
 TINY = tiny("trainer.max_steps=3", "trainer.enable_progress_bar=false")
 
 
+def test_train_off_a_terminal_prints_a_few_progress_lines_not_one_per_epoch(tmp_path, capsys):
+    # 16 training sequences in batches of 8: 200 steps are 100 epochs and 20 validations.
+    progress = [o for o in TINY if not o.startswith("trainer.enable_progress_bar")]
+    assert cli.main(["train", "model=gru", f"out={tmp_path}", *progress, "trainer.max_steps=200",
+                     "protocol.val_every=10", "protocol.patience=null"]) == 0
+    lines = capsys.readouterr().out.splitlines()
+    assert 3 <= len(lines) <= 6, lines
+    assert lines[0] == "gru adding seed=0: training, at most 200 steps"
+    end = next(line for line in lines if line.startswith("gru adding seed=0: step_cap"))
+    assert "step 200/200, loss " in end and ", val mse " in end and "(best " in end
+    assert not any("Epoch" in line or "it/s" in line for line in lines)  # no Lightning bar
+
+
 def test_list_names_every_topology_task_suite_and_launcher_with_a_line_each(capsys):
     assert cli.main(["list"]) == 0
     lines = capsys.readouterr().out.splitlines()

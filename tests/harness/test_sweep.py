@@ -12,7 +12,7 @@ from support.tiny import tiny
 import loopzoo.engine.training as training
 import loopzoo.harness.baselines as baselines
 import loopzoo.harness.sweep as sweep
-from loopzoo.harness import records, state
+from loopzoo.harness import records, running, state
 from loopzoo.harness.errors import ConfigError, OutDirError
 from loopzoo.harness.sweep import plan_sweep, run_sweep
 
@@ -57,9 +57,9 @@ def test_a_sweep_records_each_run_once_with_a_progress_line_each(tmp_path, capsy
     # The baselines of the shared (task, seed) are recorded once, not once per model.
     baselines = [r for r in records.load_records(tmp_path) if r["kind"] == "baseline"]
     assert len(baselines) == len({r["model"] for r in baselines}) > 0
-    # The sweep hides Lightning's progress bar, without changing the run ids.
-    assert all(r["config"]["trainer"]["enable_progress_bar"] is False for r in found.values())
     assert not (tmp_path / ".state" / "plan.json").exists()
+    # Finished jobs leave no progress file behind.
+    assert not list((tmp_path / ".state" / "progress").glob("*"))
 
     assert run_sweep(["model=gru,lstm", "seed=0", f"out={tmp_path}", *TINY]) == 0
     out = capsys.readouterr().out
@@ -94,10 +94,10 @@ def test_failed_and_diverged_runs_are_recorded_and_the_sweep_goes_on(tmp_path, m
                                                                       capsys):
     real = training.train_and_evaluate
 
-    def flaky(cfg, run_dir):
+    def flaky(cfg, run_dir, **options):
         if cfg.model.name == "lstm":
             raise RuntimeError("the node ran out of memory")
-        body = real(cfg, run_dir)
+        body = real(cfg, run_dir, **options)
         if cfg.model.name == "gru":
             body.update(status="diverged", reason="loss is nan", diverged_at_step=1)
         return body
@@ -122,6 +122,23 @@ def test_failed_and_diverged_runs_are_recorded_and_the_sweep_goes_on(tmp_path, m
     again = model_records(tmp_path)
     assert again["lstm"]["status"] == "ok"
     assert again["gru"] == found["gru"] and again["hidden-feedback"] == found["hidden-feedback"]
+
+
+def test_while_jobs_run_the_sweep_shows_their_progress(tmp_path, capsys, monkeypatch):
+    monkeypatch.setattr(running, "SHOW_EVERY", 0.05)
+    monkeypatch.setattr(running, "WRITE_EVERY", 0.0)
+    long_enough = ["trainer.max_steps=60", "protocol.val_every=5", "protocol.patience=null"]
+    assert run_sweep(["model=gru", f"out={tmp_path}", *TINY, *long_enough]) == 0
+    lines = capsys.readouterr().out.splitlines()
+    shown = [line for line in lines if line.startswith("  gru adding seed=0 final run")]
+    assert lines.count("running: 1 of 1 jobs, 0 finished") >= 1 and shown
+    assert all(" step " in line and " loss " in line and " val mse " in line for line in shown)
+    # Printed while the job ran, before its finished line.
+    assert lines.index(shown[0]) < next(i for i, line in enumerate(lines) if line.startswith("["))
+    # Switched off with the same key as a single run's display.
+    monkeypatch.setattr(running, "RunningDisplay", None)  # calling it would fail the sweep
+    assert run_sweep(["model=lstm", f"out={tmp_path}", *TINY,
+                      "trainer.enable_progress_bar=false"]) == 0
 
 
 def test_jobs_refused_inside_the_sweep_exit_2_with_the_reason(tmp_path, capsys):

@@ -6,6 +6,7 @@ Modules (import the one you need; this package imports nothing heavy by itself):
   test evaluation) and ``train_and_evaluate``, which returns a run's record body;
 - ``settings``: ``read_settings`` checks a composed config into ``RunSettings``;
 - ``module``: the LightningModule; ``lightning_setup``: a quiet Lightning ``Trainer``;
+- ``progress``: a fit's progress display (a live bar, or a few plain lines off a terminal);
 - ``data``, ``evaluation``, ``objectives``, ``optimizers``, ``schedules``, ``tbptt``, ``costs``:
   batches, scoring, losses, optimiser factories, teacher-forcing schedules, truncated BPTT,
   time and memory;

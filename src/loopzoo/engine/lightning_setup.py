@@ -21,6 +21,9 @@ _QUIET = {
     "enable_model_summary": False,
     "num_sanity_val_steps": 0,
     "max_epochs": -1,
+    # Lightning's bar redraws per epoch (hundreds of kB of log on a short file); runs show
+    # loopzoo's own progress instead (engine.progress).
+    "enable_progress_bar": False,
 }
 
 _CHATTY_LOGGERS = ("lightning.pytorch.utilities.rank_zero", "lightning.fabric.utilities.rank_zero",
@@ -40,17 +43,18 @@ class ReleaseProcessGroup(L.Callback):
 
 
 def fit_quietly(module: L.LightningModule, loader: Any, trainer_options: dict[str, Any], *,
-                run_dir: Path) -> float:
+                run_dir: Path, callbacks: list[L.Callback] | None = None) -> float:
     """Fit ``module`` on ``loader`` until the module sets ``trainer.should_stop``; wall seconds.
 
     The module counts its own optimiser steps and stops itself (the Trainer runs without a step
     or epoch limit). ``trainer_options`` are Lightning Trainer keyword arguments passed through
-    (accelerator, devices, strategy, enable_progress_bar, ...).
+    (accelerator, devices, strategy, ...); ``callbacks`` (e.g. ``progress.FitProgress``) are
+    added to the Trainer's.
 
     Example::
 
         module.phase(end_step=600, patience=4)
-        seconds = fit_quietly(module, loader, {"enable_progress_bar": False}, run_dir=path)
+        seconds = fit_quietly(module, loader, {"accelerator": "cpu"}, run_dir=path)
     """
     for name in _CHATTY_LOGGERS:
         logging.getLogger(name).setLevel(logging.WARNING)
@@ -62,6 +66,7 @@ def fit_quietly(module: L.LightningModule, loader: Any, trainer_options: dict[st
         warnings.filterwarnings("ignore", message=".*smaller than the logging interval.*")
         warnings.filterwarnings("ignore", message=".*LeafSpec.*")
         trainer = L.Trainer(max_steps=-1, **options)
+        trainer.callbacks.extend(callbacks or [])
         if trainer.world_size > 1:
             # Only then: every callback costs a call per hook per step.
             trainer.callbacks.append(ReleaseProcessGroup())

@@ -61,6 +61,16 @@ class FitState:
     def diverged(self) -> bool:
         return self.diverged_at is not None
 
+    @property
+    def stopped(self) -> str:
+        """How the fit ended (or would, if it ended now): diverged, pruned, early_stop or
+        step_cap."""
+        if self.diverged:
+            return "diverged"
+        if self.pruned:
+            return "pruned"
+        return "early_stop" if self.early_stopped else "step_cap"
+
 
 class SequenceModule(L.LightningModule):
     """Trains ``model`` on ``task`` batches ``(x, y, mask)`` with masked losses.

@@ -47,6 +47,7 @@ class RunSettings:
     seed: int
     suite: str | None
     max_steps: int
+    show_progress: bool
     trainer: dict[str, Any]
     optimizer: str
     lr: float
@@ -98,6 +99,9 @@ def _read_settings(cfg: DictConfig | Mapping[str, Any]) -> RunSettings:
         raise ConfigError(f"model.feedback = {feedback!r} is invalid; accepted: a mapping or null")
     seed = checks.integer("seed", cfg.get("seed"), minimum=0)
     max_steps = _count("trainer.max_steps", trainer.pop("max_steps", None))
+    # The switch of loopzoo's own progress display (engine.progress); Lightning's bar stays off.
+    show_progress = checks.boolean("trainer.enable_progress_bar",
+                                   trainer.pop("enable_progress_bar", True))
     for key, instead in _RESERVED_TRAINER_KEYS.items():
         if key in trainer:
             raise ConfigError(f"trainer.{key} is set by the training engine; use {instead}")
@@ -146,6 +150,7 @@ def _read_settings(cfg: DictConfig | Mapping[str, Any]) -> RunSettings:
         seed=seed,
         suite=cfg.get("suite"),
         max_steps=max_steps,
+        show_progress=show_progress,
         trainer=trainer,
         optimizer=optimizer,
         lr=lr,

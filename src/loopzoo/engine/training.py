@@ -38,6 +38,7 @@ from loopzoo.engine.observed_feedback import (
     selected_group,
 )
 from loopzoo.engine.optimizers import optimizer_factory
+from loopzoo.engine.progress import ConsoleProgress, FitProgress, ProgressView
 from loopzoo.engine.provenance import data_record, utc_now, versions
 from loopzoo.engine.schedules import TeacherForcingPlan
 from loopzoo.engine.settings import RunSettings, read_settings
@@ -76,8 +77,9 @@ class _Run:
     """One run's protocol state: the task, the initial model, the scorer, the fit timings."""
 
     def __init__(self, settings: RunSettings, task: Any, model: torch.nn.Module,
-                 plan: TeacherForcingPlan, run_dir: Path) -> None:
+                 plan: TeacherForcingPlan, run_dir: Path, progress: ProgressView | None) -> None:
         self.settings = settings
+        self.progress = progress if settings.show_progress else None
         self.task = task
         self.model = model
         self.plan = plan
@@ -114,8 +116,9 @@ class _Run:
         val_before = module.fit_state.val_seconds
         module.phase(end_step=end_step, patience=patience,
                      handoff=self.run_dir / ".fit-handoff.pt")
+        callbacks = [] if self.progress is None else [FitProgress(self.progress)]
         self.fit_seconds += fit_quietly(module, loader, self.settings.trainer,
-                                        run_dir=self.run_dir)
+                                        run_dir=self.run_dir, callbacks=callbacks)
         module.take_handoff()
         self.total_steps += module.fit_state.step - before
         self.val_seconds += module.fit_state.val_seconds - val_before
@@ -134,15 +137,7 @@ class _Run:
 
 def convergence(state: Any, max_steps: int) -> dict[str, Any]:
     """How a run ended: ``stopped`` is early_stop, step_cap, diverged or pruned."""
-    if state.diverged:
-        stopped = "diverged"
-    elif state.pruned:
-        stopped = "pruned"
-    elif state.early_stopped:
-        stopped = "early_stop"
-    else:
-        stopped = "step_cap"
-    return {"stopped": stopped, "best_step": state.best_step, "steps": state.step,
+    return {"stopped": state.stopped, "best_step": state.best_step, "steps": state.step,
             "max_steps": max_steps}
 
 
@@ -158,8 +153,12 @@ def _metrics(groups_val: dict[str, dict[str, float]], groups_test: dict[str, dic
     return metrics
 
 
-def train_and_evaluate(cfg: DictConfig, run_dir: Path) -> dict[str, Any]:
+def train_and_evaluate(cfg: DictConfig, run_dir: Path, *,
+                       progress: ProgressView | None = None) -> dict[str, Any]:
     """Train the configured topology on the configured task and return the record body.
+
+    Training shows its progress on ``progress`` (default: ``ConsoleProgress`` on stdout) unless
+    ``trainer.enable_progress_bar`` is false.
 
     The body holds every record field except ``schema``, ``run_id`` and ``config`` (added by the
     records module, which also turns non-finite numbers into null). Bad configs (unknown names or
@@ -177,7 +176,9 @@ def train_and_evaluate(cfg: DictConfig, run_dir: Path) -> dict[str, Any]:
     task = build_task(settings)
     model = build_model(settings, task)
     plan, plan_note = observed_plan(_feedback_plan(settings, model), task)
-    run = _Run(settings, task, model, plan, run_dir)
+    if progress is None:
+        progress = ConsoleProgress(f"{settings.model} {settings.task} seed={settings.seed}")
+    run = _Run(settings, task, model, plan, run_dir, progress)
     body: dict[str, Any] = {
         "kind": "model", "status": "ok", "reason": None, "diverged_at_step": None,
         "model": settings.model, "task": settings.task, "suite": settings.suite,
@@ -208,9 +209,11 @@ def train_and_evaluate(cfg: DictConfig, run_dir: Path) -> dict[str, Any]:
 
 
 def validation_run(cfg: DictConfig, run_dir: Path,
-                   on_validation: Callable[[int, float], bool] | None = None) -> dict[str, Any]:
+                   on_validation: Callable[[int, float], bool] | None = None, *,
+                   progress: ProgressView | None = None) -> dict[str, Any]:
     """Train ``cfg`` as a tuning trial: scored on validation only (the test split is never
-    scored), no artifact, no cost measurements.
+    scored), no artifact, no cost measurements. Progress goes to ``progress`` (default: none)
+    unless ``trainer.enable_progress_bar`` is false.
 
     ``on_validation(step, value)`` is called after every finite validation; returning True stops
     the run as pruned. Returns ``{"value"``: the best validation primary metric, or None when the
@@ -222,7 +225,7 @@ def validation_run(cfg: DictConfig, run_dir: Path,
     task = build_task(settings)
     model = build_model(settings, task)
     plan, _ = observed_plan(_feedback_plan(settings, model), task)
-    run = _Run(settings, task, model, plan, Path(run_dir))
+    run = _Run(settings, task, model, plan, Path(run_dir), progress)
     state = run.fit_run(on_validation).fit_state
     ended = convergence(state, settings.max_steps)
     usable = ended["stopped"] in ("early_stop", "step_cap") and state.best_val is not None

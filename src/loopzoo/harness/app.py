@@ -12,16 +12,17 @@ import shutil
 import time
 import traceback
 import warnings
+from contextlib import nullcontext
 from dataclasses import asdict, dataclass
 from pathlib import Path
 from typing import Any
 
 import hydra
 from hydra.core.hydra_config import HydraConfig
-from omegaconf import DictConfig, OmegaConf, open_dict
+from omegaconf import DictConfig, OmegaConf
 
 from loopzoo._io import atomic_write_json, atomic_write_text
-from loopzoo.harness import records, runids, state, tuning
+from loopzoo.harness import records, runids, running, state, tuning
 from loopzoo.harness.config import cores
 from loopzoo.harness.errors import ConfigError, OutDirError
 from loopzoo.harness.reproduce import reproduce_command
@@ -101,12 +102,27 @@ def ensure_baselines(cfg: DictConfig) -> int:
         return len(written)
 
 
-def _train(cfg: DictConfig, run_dir: Path, started: str) -> dict[str, Any]:
+def _console_views(cfg: DictConfig) -> running.ViewFactory:
+    """``loopzoo train``: a live bar (or a few lines) per fit on stdout; a trial's own end line
+    is ``_trial_line``."""
+    from loopzoo.engine.progress import ConsoleProgress
+
+    def view(phase: running.Phase) -> ConsoleProgress:
+        if phase is None:
+            return ConsoleProgress(f"{cfg.model.name} {cfg.task.name} seed={cfg.seed}")
+        return ConsoleProgress(f"  {running.phase_name(phase)} {cfg.model.name} {cfg.task.name}",
+                               announce=False)
+
+    return view
+
+
+def _train(cfg: DictConfig, run_dir: Path, started: str,
+           views: running.ViewFactory) -> dict[str, Any]:
     """The training engine's ``train_and_evaluate``; an unexpected error becomes a failed body."""
     from loopzoo.engine.training import train_and_evaluate
 
     try:
-        return train_and_evaluate(cfg, run_dir)
+        return train_and_evaluate(cfg, run_dir, progress=views(None))
     except ConfigError:
         raise
     except Exception as error:  # recorded as failed so the sweep goes on
@@ -115,40 +131,49 @@ def _train(cfg: DictConfig, run_dir: Path, started: str) -> dict[str, Any]:
         return records.failed_body(OmegaConf.to_container(cfg, resolve=True), reason, started)
 
 
-def _run_trial(cfg: DictConfig, folder: Path, report: Any) -> tuning.TrialOutcome:
-    """One tuning trial through the engine; a config the tuned values make impossible (e.g. a
-    parameter budget too small for the depth) is a finished trial without a value."""
+def _trial_runner(settings: tuning.TuningSettings,
+                  views: running.ViewFactory) -> tuning.TrialRunner:
+    """Runs one tuning trial through the engine; a config the tuned values make impossible (e.g.
+    a parameter budget too small for the depth) is a finished trial without a value."""
     from loopzoo.engine.training import validation_run
 
-    tick = time.perf_counter()
-    try:
-        result = validation_run(cfg, folder, report)
-    except ConfigError as error:
-        log.warning("trial refused: %s", error)
-        return tuning.TrialOutcome(None, "refused", 0, time.perf_counter() - tick)
-    return tuning.TrialOutcome(result["value"], result["stopped"], result["steps"],
-                               result["seconds"])
+    def run(cfg: DictConfig, folder: Path, report: Any) -> tuning.TrialOutcome:
+        tick = time.perf_counter()
+        # Trial k trains with seed TRIAL_SEED_BASE + k (tuning's documented convention).
+        number = int(cfg.seed) - tuning.TRIAL_SEED_BASE
+        try:
+            result = validation_run(cfg, folder, report,
+                                    progress=views((number, settings.trials)))
+        except ConfigError as error:
+            log.warning("trial refused: %s", error)
+            return tuning.TrialOutcome(None, "refused", 0, time.perf_counter() - tick)
+        return tuning.TrialOutcome(result["value"], result["stopped"], result["steps"],
+                                   result["seconds"])
+
+    return run
 
 
 def _trial_line(cfg: DictConfig, settings: tuning.TuningSettings) -> Any:
     def show(number: int, outcome: tuning.TrialOutcome) -> None:
         value = "-" if outcome.value is None else f"{outcome.value:.4g}"
-        print(f"  trial {number:>3} {cfg.model.name:<16} {cfg.task.name:<10} val={value:<10} "
-              f"{outcome.stopped:<10} {outcome.steps:>5} steps {outcome.seconds:6.1f} s",
-              flush=True)
+        print(running.over_status_line(
+            f"  trial {number:>3} {cfg.model.name:<16} {cfg.task.name:<10} val={value:<10} "
+            f"{outcome.stopped:<10} {outcome.steps:>5} steps {outcome.seconds:6.1f} s"),
+            flush=True)
 
     return show
 
 
 def _tune_and_train(cfg: DictConfig, settings: tuning.TuningSettings | None, run_dir: Path,
-                    started: str, rid: str) -> tuple[dict[str, Any], DictConfig]:
+                    started: str, rid: str, views: running.ViewFactory
+                    ) -> tuple[dict[str, Any], DictConfig]:
     """Finish the study (if tuned), train its chosen values with this job's seed; returns the
-    record body and the config that was trained."""
+    record body and the config that was trained. Each fit shows its progress on ``views``."""
     summary = None
     trained = cfg
     if settings is not None:
         try:
-            study = tuning.ensure_trials(cfg, settings, _run_trial,
+            study = tuning.ensure_trials(cfg, settings, _trial_runner(settings, views),
                                          on_trial=_trial_line(cfg, settings))
         except (ConfigError, OutDirError):
             raise
@@ -165,7 +190,7 @@ def _tune_and_train(cfg: DictConfig, settings: tuning.TuningSettings | None, run
             body["tuning"] = summary
             return body, cfg
         trained = tuning.chosen_config(cfg, summary)
-    body = _train(trained, run_dir, started)
+    body = _train(trained, run_dir, started, views)
     body["tuning"] = summary
     body["reproduce"] = reproduce_command(trained, out=f"reproduce/{rid}")
     return body, trained
@@ -177,7 +202,8 @@ def run_one(cfg: DictConfig, *, threads: int | None = None, sweep: bool = False)
     Writes ``out/records/<run_id>.json`` atomically, then the task's baseline records for the
     seed (once per task config and seed). Raises ``ConfigError`` for configs refused before
     training and ``OutDirError`` for an output directory of another suite or schema.
-    ``sweep`` hides Lightning's progress bar and counts the job in the sweep's progress.
+    ``sweep`` keeps the job's training progress in its progress file (``running``) for the
+    sweep's display, instead of on stdout, and counts the job in the sweep's progress.
     """
     import torch
 
@@ -217,14 +243,12 @@ def _run_locked(cfg: DictConfig, out: Path, sweep: bool) -> Outcome:
             status, reason = "skipped", f"recorded {kept['status']}"
         else:
             started = records.utc_now()
-            if sweep:
-                cfg = cfg.copy()
-                with open_dict(cfg):
-                    cfg.trainer.enable_progress_bar = False
             run_dir = out / "runs" / rid
             shutil.rmtree(run_dir, ignore_errors=True)  # leftovers of an interrupted attempt
             run_dir.mkdir(parents=True)
-            body, trained = _tune_and_train(cfg, settings, run_dir, started, rid)
+            with (running.job_progress(out, rid, cfg) if sweep
+                  else nullcontext(_console_views(cfg))) as views:
+                body, trained = _tune_and_train(cfg, settings, run_dir, started, rid, views)
             body = _changed_files(body, content)
             # The config that was trained: the job's, with the tuned values written in.
             config = OmegaConf.to_container(trained, resolve=True)
@@ -274,7 +298,7 @@ def sweep_job(cfg: DictConfig) -> dict[str, Any]:
                           time.perf_counter() - tick, f"{type(error).__name__}: {error}")
     done = state.count_finished(cfg.out, asdict(outcome))
     prefix = f"[{done[0]:>3}/{done[1]}] " if done else ""
-    print(prefix + outcome.line(), flush=True)
+    print(running.over_status_line(prefix + outcome.line()), flush=True)
     return asdict(outcome)
 
 

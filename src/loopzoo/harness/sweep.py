@@ -13,13 +13,14 @@ from __future__ import annotations
 import sys
 import time
 from collections import Counter
+from contextlib import nullcontext
 from dataclasses import dataclass
 from pathlib import Path
 
 from omegaconf import DictConfig, OmegaConf
 
 from loopzoo import _checks as checks
-from loopzoo.harness import records, runids, state, tuning
+from loopzoo.harness import records, runids, running, state, tuning
 from loopzoo.harness.config import compose_job, composer, parse_overrides, plain_task_options
 from loopzoo.harness.errors import ConfigError, as_config_errors
 from loopzoo.harness.hydra_private import run_multirun, split_jobs
@@ -139,7 +140,9 @@ def _launcher_overrides(overrides: list[str], jobs: int, token: str) -> list[str
 
 
 def run_sweep(overrides: list[str]) -> int:
-    """Run the sweep; print one line per finished job and a summary. Returns the exit code:
+    """Run the sweep; print one line per finished job, the running jobs' progress while they
+    run (``running.RunningDisplay``; off with ``trainer.enable_progress_bar=false``) and a
+    summary. Returns the exit code:
     0 when every job ran or was skipped (diverged and failed runs are recorded results),
     2 when jobs were refused (their reasons are printed)."""
     from loopzoo.harness.app import hydra_sweep_entry
@@ -151,6 +154,7 @@ def run_sweep(overrides: list[str]) -> int:
     _check_studies(plan)
     with state.sweep_lock(plan.out):
         _remove_stale_temp_files(plan.out)
+        running.clear(plan.out)
         ids = plan.run_ids  # hashes every user file once
         launch = _to_launch(plan.out, ids)
         distinct = len(set(ids))
@@ -164,7 +168,10 @@ def run_sweep(overrides: list[str]) -> int:
         if launch:
             token = state.write_plan(plan.out,
                                      [OmegaConf.to_container(plan.jobs[i]) for i in launch])
-            run_multirun(hydra_sweep_entry, _launcher_overrides(overrides, len(launch), token))
+            shown = any(plan.jobs[i].trainer.get("enable_progress_bar", True) for i in launch)
+            with (running.RunningDisplay(plan.out, token, len(launch)) if shown
+                  else nullcontext()):
+                run_multirun(hydra_sweep_entry, _launcher_overrides(overrides, len(launch), token))
             finished = (state.read_plan(plan.out) or {}).get("finished", [])
             state.end_plan(plan.out)
     counts = Counter(outcome["status"] for outcome in finished)
