@@ -89,6 +89,8 @@ def test_csv_forecasts_from_the_raw_test_rows_reproduce_the_test_mse(tmp_path, d
     # the forecasts beyond the data carry their origin time, and the time where it is known
     last = forecasts[forecasts["origin_row"] == forecasts["origin_row"].max()]
     assert last["origin_time"].tolist() == [len(rows) - 1] * 2 and last["actual"].isna().all()
+    # past the last row the (evenly spaced) times continue: the step of each horizon ahead
+    assert last["time"].tolist() == [len(rows), len(rows) + 2]
     assert list(forecasts.columns) == ["origin_row", "origin_time", "time", "target", "horizon",
                                        "forecast", "actual"]
 

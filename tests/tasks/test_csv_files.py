@@ -239,3 +239,22 @@ def test_any_file_builds_or_raises_a_clear_error(tmp_path_factory, rows, classif
     except ValueError as error:
         assert str(path) in str(error) or "line" in str(error) or "column" in str(error)
     assert listing(folder) == ["fuzz.csv"]
+
+
+def test_times_continue_past_the_last_row_only_where_they_are_regular():
+    """Month starts continue as pandas' own calendar arithmetic does (``pandas.date_range`` with
+    the inferred frequency, the reference); equal number steps continue; anything else stops."""
+    import pandas as pd
+
+    from loopzoo.tasks._table import TimeColumn
+
+    months = pd.date_range("2023-11-01", periods=4, freq="MS").to_numpy(dtype="datetime64[ns]")
+    column = TimeColumn("month", "datetime", months, dates_only=True)
+    expected = [str(t.date()) for t in pd.date_range(months[-1], periods=4, freq="MS")[1:]]
+    assert column.following(np.arange(4), 3) == expected == ["2024-03-01", "2024-04-01",
+                                                             "2024-05-01"]
+    numbers = TimeColumn("hour", "number", np.array([3.0, 5.0, 7.0, 9.0]))
+    assert numbers.following(np.arange(4), 2) == [11, 13]
+    gappy = TimeColumn("hour", "number", np.array([1.0, 2.0, 4.0, 5.0]))
+    assert gappy.following(np.arange(4), 2) is None
+    assert numbers.following(np.arange(2), 1) is None  # too few times to call them regular

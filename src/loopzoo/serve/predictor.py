@@ -112,8 +112,9 @@ class Predictor:
         series: a DataFrame (or a ``Table``) with the artifact's columns (and time column, if any),
         or an (L, C) array of the columns in artifact order -> a DataFrame with one row per
         forecast origin, target and horizon: ``origin_row`` (0-based, in time order),
-        ``origin_time`` and ``time`` (the forecast step's time where that row is in the data) if
-        the artifact has a time column, ``target``, ``horizon``, ``forecast``, ``actual`` (the
+        ``origin_time`` and ``time`` (the forecast step's time: from the data, or continuing its
+        regular spacing past the last row; None past irregular times) if the artifact has a
+        time column, ``target``, ``horizon``, ``forecast``, ``actual`` (the
         value at the forecast step where it is in the data, else NaN).
 
         next-symbol: a string -> a DataFrame with one row per position: ``position``, ``symbol``,
@@ -142,7 +143,9 @@ class Predictor:
 
     def series_values(self, table: Table, ordered: bool = False) -> tuple[np.ndarray, Any]:
         """(L, C) raw values of the artifact's columns in time order (sorted by the time column
-        unless ``ordered``), and the ordered rows' time labels (None without a time column)."""
+        unless ``ordered``), and the time labels of the ordered rows followed by those of the
+        steps up to the longest horizon past the last row where the times are regular (None
+        without a time column)."""
         reading = self.reading
         assert isinstance(reading, SeriesReading)
         time = None if ordered else reading.time
@@ -157,6 +160,7 @@ class Predictor:
             times = _checked(table.times, "time", time)
             rows = _checked(table.order, times, rows)[0]
             labels = [times.label(r) for r in rows]
+            labels += times.following(rows, max(reading.horizons)) or []
         if len(table) < reading.rows_needed:
             extra = " (plus 1 before it for its differences)" if reading.differences else ""
             raise PredictionError(
@@ -187,10 +191,9 @@ class Predictor:
             ahead = origins + horizon
             inside = ahead < len(values)
             record = {"origin_row": origins}
-            if times is not None:
+            if times is not None:  # past the data only where the times are regular
                 record["origin_time"] = [times[o] for o in origins]
-                record["time"] = pd.Series([times[a] if ok else None
-                                            for a, ok in zip(ahead, inside, strict=True)],
+                record["time"] = pd.Series([times[a] if a < len(times) else None for a in ahead],
                                            dtype=object)
             record.update(
                 target=target, horizon=horizon, forecast=forecast[:, channel],

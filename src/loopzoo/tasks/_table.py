@@ -52,11 +52,35 @@ class TimeColumn:
 
     def label(self, index: int) -> str | int | float:
         """Value ``index`` for messages and records: a number, or an ISO 8601 string."""
-        value = self.values[index]
+        return self._show(self.values[index])
+
+    def _show(self, value: Any) -> str | int | float:
         if self.kind == "number":
             return int(value) if float(value).is_integer() else float(value)
         text = np.datetime_as_string(value, unit="s")
         return text[:10] if self.dates_only else text
+
+    def following(self, ordered: np.ndarray, count: int) -> list[str | int | float] | None:
+        """Labels of the ``count`` times after the last of ``ordered``, continuing its regular
+        spacing (an equal number step, or the calendar frequency pandas infers: months, weeks);
+        None when the times are not regular (fewer than 3, or unequal steps)."""
+        values = self.values[ordered]
+        if len(values) < 3:
+            return None
+        if self.kind == "number":
+            steps = np.diff(values)
+            if not np.allclose(steps, steps[0], rtol=1e-9, atol=0.0):
+                return None
+            return [self._show(values[-1] + k * steps[0]) for k in range(1, count + 1)]
+        pd = _pandas()
+        with warnings.catch_warnings():  # pandas 3 warns that an offset object will come
+            warnings.simplefilter("ignore", FutureWarning)
+            warnings.simplefilter("ignore", DeprecationWarning)
+            frequency = pd.infer_freq(pd.DatetimeIndex(values))
+        if frequency is None:
+            return None
+        future = pd.date_range(pd.Timestamp(values[-1]), periods=count + 1, freq=frequency)[1:]
+        return [self._show(np.datetime64(t.to_datetime64(), "ns")) for t in future]
 
 
 @dataclasses.dataclass(frozen=True)
