@@ -6,6 +6,7 @@ import pytest
 import torch
 from safetensors.torch import save as safetensors_save
 
+import loopzoo
 from loopzoo.serve.streaming import StreamRunner
 
 # Batched and single-stream matrix products round differently in the last float32 bits, and
@@ -109,6 +110,23 @@ def test_bad_input_is_a_clear_error(build):
         runner.push_many({"pump-1": [[0.0, 0.0, 0.0]], "pump-3": [[0.0, 0.0, 0.0]]})
     with pytest.raises(TypeError, match="loopzoo module"):
         StreamRunner(torch.nn.Linear(3, 2))
+
+
+def test_finiteness_of_a_sample_is_exact_on_both_ways_of_summing():
+    # A sample is first summed (a Python sum up to 64 values, numpy beyond); only a sum that is
+    # not finite is tested value by value, so an overflowing sum of finite values is accepted.
+    wide = loopzoo.create("hidden-feedback", input_size=100, output_size=2, hidden_size=4)
+    narrow = loopzoo.create("hidden-feedback", input_size=3, output_size=2,
+                            hidden_size=4).double()
+    for model, large in ((wide, 3e38), (narrow, 1e308)):
+        runner = StreamRunner(model)
+        runner.start("s")
+        sample = torch.zeros(model.input_size, dtype=next(model.parameters()).dtype)
+        sample[:2] = large
+        assert runner.push("s", sample).shape == (2,)
+        sample[1] = float("nan")
+        with pytest.raises(ValueError, match="sample for stream 's' contains NaN"):
+            runner.push("s", sample)
 
 
 def test_bad_state_data_is_a_clear_error(build):

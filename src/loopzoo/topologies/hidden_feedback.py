@@ -16,6 +16,7 @@ from __future__ import annotations
 from typing import Any
 
 import torch
+import torch.nn.functional as F
 from torch import Tensor
 
 from loopzoo.topologies._base import (
@@ -77,5 +78,6 @@ class HiddenFeedback(RecurrentTopology):
         return batch_first(self.readout(hs)), (final,)  # hs: (T, B, H)
 
     def step_unchecked(self, x_t: Tensor, state: State) -> tuple[Tensor, State]:
-        h = self.cell.step(x_t, state[0])
-        return self.readout(h), (h,)
+        h, readout = self.cell.step(x_t, state[0]), self.readout
+        # The readout's function, not its module call: a streamed sample pays for every call.
+        return F.linear(h, readout.weight, readout.bias), (h,)
