@@ -19,6 +19,7 @@ import shutil
 import signal
 import subprocess
 import sys
+import tempfile
 import time
 from collections.abc import Callable
 from dataclasses import dataclass
@@ -298,9 +299,9 @@ exec "$@"
 @functools.cache
 def private_mounts() -> bool:
     """Whether this machine lets a process mount a disk of its own (``unshare``)."""
+    probe = [*PRIVATE_MOUNTS, "mount", "-t", "tmpfs", "tmpfs", tempfile.gettempdir()]
     try:
-        return subprocess.run([*PRIVATE_MOUNTS, "mount", "-t", "tmpfs", "tmpfs", "/mnt"],
-                              capture_output=True, timeout=60).returncode == 0
+        return subprocess.run(probe, capture_output=True, timeout=60).returncode == 0
     except FileNotFoundError:
         return False
 
