@@ -300,42 +300,20 @@ def test_former_module_paths_still_import_the_same_objects():
 
 
 # Issue 15 item 2: a description edited to a huge size must be refused from the files' headers,
-# before any module is built, so the refusal costs neither gigabytes nor seconds.
-_PEAK_RSS_MB = (
-    "import resource, sys, loopzoo\n"
-    "from loopzoo.serve import ArtifactError\n"
-    "try:\n"
-    "    loopzoo.load(sys.argv[1])\n"
-    "except ArtifactError as error:\n"
-    "    print(error)\n"
-    "print(resource.getrusage(resource.RUSAGE_SELF).ru_maxrss // 1024)\n"
-)
+# before any module is built, so the refusal costs neither gigabytes nor seconds (``fresh_load``
+# in tests/conftest.py measures it in a process of its own).
 
 
-def _load_in_fresh_process(path: Path) -> tuple[str, int]:
-    """The refusal message and the peak resident memory (MB) of loading ``path`` alone."""
-    done = subprocess.run([sys.executable, "-c", _PEAK_RSS_MB, str(path)], capture_output=True,
-                          text=True, timeout=300, check=True)
-    *message, peak = done.stdout.strip().splitlines()
-    return "\n".join(message), int(peak)
-
-
-def _baseline_rss_mb() -> int:
-    done = subprocess.run([sys.executable, "-c", "import resource, loopzoo; print(resource."
-                           "getrusage(resource.RUSAGE_SELF).ru_maxrss // 1024)"],
-                          capture_output=True, text=True, timeout=300, check=True)
-    return int(done.stdout)
-
-
-def test_a_huge_hidden_size_in_model_json_is_refused_without_building_it(artifact):
+def test_a_huge_hidden_size_in_model_json_is_refused_without_building_it(artifact, fresh_load):
     # hidden_size 30000 would hold a 30000 x 30000 float32 matrix: 3.6 GB.
     _edit_description(artifact, options={"input_size": 3, "output_size": 2, "hidden_size": 30000})
-    message, peak = _load_in_fresh_process(artifact)
+    message, extra_mb = fresh_load(artifact)
     assert "expects float32[30000" in message and "weights.safetensors (header)" in message
-    assert peak < _baseline_rss_mb() + 200, f"loading took {peak} MB before refusing"
+    assert extra_mb < 200, f"loading took {extra_mb} MB more before refusing"
 
 
-def test_a_consistent_edit_of_options_and_tensors_is_refused_by_the_weights_header(artifact):
+def test_a_consistent_edit_of_options_and_tensors_is_refused_by_the_weights_header(artifact,
+                                                                                  fresh_load):
     description = json.loads((artifact / DESCRIPTION_FILE).read_text())
     with torch.device("meta"):
         huge = loopzoo.create("hidden-feedback", input_size=3, output_size=2, hidden_size=30000)
@@ -345,20 +323,20 @@ def test_a_consistent_edit_of_options_and_tensors_is_refused_by_the_weights_head
                  for n, t in huge.state_dict().items()},
     )
     assert description["tensors"] != read_description(artifact)["tensors"]
-    message, peak = _load_in_fresh_process(artifact)
+    message, extra_mb = fresh_load(artifact)
     assert "field 'tensors' expects float32[30000" in message
-    assert peak < _baseline_rss_mb() + 200, f"loading took {peak} MB before refusing"
+    assert extra_mb < 200, f"loading took {extra_mb} MB more before refusing"
 
 
-def test_a_checkpoint_with_a_huge_size_is_refused_before_building(build, tmp_path):
+def test_a_checkpoint_with_a_huge_size_is_refused_before_building(build, tmp_path, fresh_load):
     model = build("hidden-feedback")
     path = tmp_path / "model.ckpt"
     torch.save({"state_dict": model.state_dict(),
                 "loopzoo": {"topology": "hidden-feedback",
                             "options": {**model.options, "hidden_size": 40000}}}, path)
-    message, peak = _load_in_fresh_process(path)
+    message, extra_mb = fresh_load(path)
     assert "expects float32[40000" in message
-    assert peak < _baseline_rss_mb() + 200, f"loading took {peak} MB before refusing"
+    assert extra_mb < 200, f"loading took {extra_mb} MB more before refusing"
 
 
 @pytest.mark.parametrize(

@@ -16,11 +16,15 @@ __all__ = ["build_model", "build_task", "model_options"]
 
 
 def build_task(settings: RunSettings) -> Any:
-    """The configured task, built with the run's seed (``loopzoo.tasks.create``)."""
+    """The configured task, built with the run's seed (``loopzoo.tasks.create``), its parts
+    made: data a task refuses only when splitting it (a class too small for every part) is a
+    refused config too, never a failed run."""
     try:
-        return loopzoo.tasks.create(settings.task, seed=settings.seed, **settings.task_options)
+        task = loopzoo.tasks.create(settings.task, seed=settings.seed, **settings.task_options)
+        task.split("train")  # builds and caches every part
     except (ValueError, TypeError, KeyError) as error:
         raise ConfigError(f"task {settings.task!r}: {error}") from error
+    return task
 
 
 def model_options(settings: RunSettings, task: Any) -> dict[str, Any]:

@@ -28,7 +28,8 @@ from loopzoo.harness.errors import ConfigError, OutDirError
 from loopzoo.harness.reproduce import reproduce_command
 from loopzoo.harness.shipped import CONFIG_MODULE
 
-__all__ = ["Outcome", "run_one", "ensure_baselines", "threads_for_launcher", "sweep_job"]
+__all__ = ["Outcome", "run_one", "baselines_recorded", "ensure_baselines",
+           "threads_for_launcher", "sweep_job"]
 
 log = logging.getLogger(__name__)
 # Lightning 2.6 with torch 2.13 warns about a deprecated pytree class on every fit; it is
@@ -72,33 +73,51 @@ def threads_for_launcher(launcher: DictConfig | dict[str, Any] | None) -> int:
     return int(cpus) if cpus else total
 
 
+def _baselines_marker(cfg: DictConfig) -> Path:
+    """The file listing the baseline records of the job's task (and seed) once all are written."""
+    return state.state_dir(Path(cfg.out)) / "baselines" / f"{runids.baseline_group(cfg)}.json"
+
+
+def _listed_baselines(cfg: DictConfig) -> list[str] | None:
+    """Run ids of the job's baseline records as last written, or None before they all were."""
+    marker = _baselines_marker(cfg)
+    return json.loads(marker.read_text(encoding="utf-8"))["run_ids"] if marker.exists() else None
+
+
+def baselines_recorded(cfg: DictConfig) -> bool:
+    """Whether every baseline record of the job's task (and seed) is written and readable; the
+    damaged ones are set aside (``records.existing_record``)."""
+    listed = _listed_baselines(cfg)
+    return listed is not None and all(
+        [records.existing_record(cfg.out, rid) is not None for rid in listed])
+
+
 def ensure_baselines(cfg: DictConfig) -> int:
     """Write the records of the task's classical baselines for this seed, once.
 
-    Returns how many were written now (0 when all exist). Parallel jobs sharing a (task, seed)
-    wait on one lock, so the baselines are computed once.
+    Returns how many were written now (0 when all exist and are readable). Parallel jobs sharing
+    a (task, seed) wait on one lock, so the baselines are computed once.
     """
     from loopzoo.harness.baselines import baseline_records
 
     out = Path(cfg.out)
     group = runids.baseline_group(cfg)
-    marker = state.state_dir(out) / "baselines" / f"{group}.json"
     with state.file_lock(state.state_dir(out) / "locks" / f"baselines-{group}.lock"):
-        if marker.exists():
-            listed = json.loads(marker.read_text(encoding="utf-8"))["run_ids"]
-            if all(records.record_path(out, rid).exists() for rid in listed):
-                return 0
+        if baselines_recorded(cfg):
+            return 0
         config = OmegaConf.to_container(cfg, resolve=True)
-        written = []
         bodies = baseline_records(cfg)
+        written = [runids.baseline_run_id(cfg, body["model"]) for body in bodies]
+        # Rows of a fixed record carry the seed of the job that computed them, so a job of
+        # another seed redoing them names them anew: the earlier names go, never a row twice.
+        for rid in set(_listed_baselines(cfg) or ()) - set(written):
+            records.record_path(out, rid).unlink(missing_ok=True)
         records.claim_out_dir(out, cfg.suite)
-        for body in bodies:
-            rid = runids.baseline_run_id(cfg, body["model"])
-            record = records.make_record(body, run_id=rid, kind=body["kind"], config=config)
-            records.write_record(out, record)
-            written.append(rid)
+        for rid, body in zip(written, bodies, strict=True):
+            records.write_record(
+                out, records.make_record(body, run_id=rid, kind=body["kind"], config=config))
         # The marker comes last: a kill before it only means the baselines are redone.
-        atomic_write_json(marker, {"run_ids": written})
+        atomic_write_json(_baselines_marker(cfg), {"run_ids": written})
         return len(written)
 
 
@@ -256,13 +275,14 @@ def _run_locked(cfg: DictConfig, out: Path, sweep: bool) -> Outcome:
             records.write_record(
                 out, records.make_record(body, run_id=rid, kind="model", config=config)
             )
-            # After the run, so a config refused before training leaves no record at all.
-            try:
-                ensure_baselines(cfg)
-            except Exception as error:  # the run's record stands; the next run retries these
-                log.warning("baselines of task %s seed %s not recorded: %s: %s",
-                            cfg.task.name, cfg.seed, type(error).__name__, error)
             status, reason = body["status"], body.get("reason")
+        # After the run, so a config refused before training leaves no record at all; also
+        # after a kept run, whose baselines may be missing or damaged.
+        try:
+            ensure_baselines(cfg)
+        except Exception as error:  # the run's record stands; the next run retries these
+            log.warning("baselines of task %s seed %s not recorded: %s: %s",
+                        cfg.task.name, cfg.seed, type(error).__name__, error)
     return Outcome(rid, cfg.model.name, cfg.task.name, int(cfg.seed), status,
                    time.perf_counter() - tick, reason)
 

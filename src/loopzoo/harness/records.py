@@ -171,17 +171,17 @@ def load_records(out: str | Path) -> list[dict[str, Any]]:
     return [read_record(p) for p in sorted(folder.glob("[!.]*.json"))]
 
 
-def is_done(out: str | Path, run_id: str) -> dict[str, Any] | None:
-    """The existing record of ``run_id`` if a rerun keeps it (status in ``KEPT_ON_RERUN``).
+def existing_record(out: str | Path, run_id: str) -> dict[str, Any] | None:
+    """The record of ``run_id`` if it exists and is readable, whatever its status.
 
-    A damaged record (not a JSON object) is set aside with a message naming both paths, and the
-    run counts as not done, so one bad file never blocks a sweep.
+    A damaged record (not a JSON object) is set aside with a message naming both paths and
+    counts as missing, so one bad file never blocks a sweep: its run is done again.
     """
     path = record_path(out, run_id)
     if not path.exists():
         return None
     try:
-        record = read_record(path)
+        return read_record(path)
     except DamagedRecord as error:
         try:
             aside = set_aside(path)
@@ -190,7 +190,13 @@ def is_done(out: str | Path, run_id: str) -> dict[str, Any] | None:
         print(f"{error}; moved to {aside} (kept) and the run is done again",
               file=sys.stderr, flush=True)
         return None
-    return record if record.get("status") in KEPT_ON_RERUN else None
+
+
+def is_done(out: str | Path, run_id: str) -> dict[str, Any] | None:
+    """The existing record of ``run_id`` if a rerun keeps it (status in ``KEPT_ON_RERUN``); a
+    damaged one is set aside (``existing_record``)."""
+    record = existing_record(out, run_id)
+    return record if record is not None and record.get("status") in KEPT_ON_RERUN else None
 
 
 def suite_digest(suite: str | None) -> str | None:

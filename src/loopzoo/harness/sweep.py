@@ -4,8 +4,8 @@ Before any training the whole sweep is composed job by job (so a bad name or key
 refused up front), the output directory is checked and locked (its first record claims it),
 and the progress plan is written. Jobs whose record is kept on rerun (``records.KEPT_ON_RERUN``)
 are skipped there, in this process; the launcher (``hydra/launcher``, joblib by default) runs
-``app.sweep_job`` only for the others, each once per distinct run id, so a finished sweep starts
-no worker at all.
+``app.sweep_job`` only for the others, each once per distinct run id (and for one job of a task
+whose baseline records are missing or damaged), so a finished sweep starts no worker at all.
 """
 
 from __future__ import annotations
@@ -114,14 +114,24 @@ def _check_studies(plan: SweepPlan) -> None:
             raise ConfigError(f"job {' '.join(overrides)}: {error}") from None
 
 
-def _to_launch(out: Path, ids: list[str]) -> list[int]:
-    """Places in the plan (whose run ids are ``ids``) of the jobs to run: the first job of each
-    distinct run id whose record is not kept on rerun."""
+def _to_launch(plan: SweepPlan, ids: list[str]) -> list[int]:
+    """Places in ``plan`` (whose run ids are ``ids``) of the jobs to run: the first job of each
+    distinct run id whose record is not kept on rerun, and the first job of each task (and seed)
+    whose baseline records are missing or damaged and that none of those jobs will write."""
+    from loopzoo.harness.app import baselines_recorded
+
     chosen: dict[str, int] = {}
     for index, rid in enumerate(ids):
-        if rid not in chosen and records.is_done(out, rid) is None:
+        if rid not in chosen and records.is_done(plan.out, rid) is None:
             chosen[rid] = index
-    return list(chosen.values())
+    covered = {runids.baseline_group(plan.jobs[index]) for index in chosen.values()}
+    for index, job in enumerate(plan.jobs):
+        group = runids.baseline_group(job)
+        if group not in covered:
+            covered.add(group)
+            if not baselines_recorded(job):
+                chosen[ids[index]] = index
+    return sorted(chosen.values())
 
 
 def _launcher_overrides(overrides: list[str], jobs: int, token: str) -> list[str]:
@@ -156,7 +166,7 @@ def run_sweep(overrides: list[str]) -> int:
         _remove_stale_temp_files(plan.out)
         running.clear(plan.out)
         ids = plan.run_ids  # hashes every user file once
-        launch = _to_launch(plan.out, ids)
+        launch = _to_launch(plan, ids)
         distinct = len(set(ids))
         print(
             f"sweep: {len(plan.jobs)} runs ({distinct} distinct), {distinct - len(launch)} "
