@@ -13,9 +13,10 @@ from loopzoo.report.stats import interval
 REPS = 600
 
 
-def _row(label, values):
+def _row(label, values, exact=False):
     return Row(kind="model", label=label, runs=(), counts={}, values=tuple(values),
-               interval=interval(values, "log"), exact=False, flags=(), tuning=None, ship=None,
+               interval=interval(values, "log", exact=exact), exact=exact, flags=(), tuning=None,
+               ship=None,
                params="", params_value=None, rank=None, versus_best=Comparison("no data", None),
                versus_pick=Comparison("no data", None), cost={}, batch_size=None, reach={},
                exposure=None, front_latency=None, front_params=None)
@@ -45,3 +46,13 @@ def test_a_true_gap_is_never_called_equivalent():
     runs = [_verdicts(rng, [0.0, 2.0]) for _ in range(REPS // 2)]
     assert not any(run.get("r1") == "equivalent" for run in runs)
     assert any(run.get("r1") == "worse" for run in runs)
+
+
+def test_two_seed_independent_rows_are_not_tested_against_each_other():
+    # Two classical rows whose values do not depend on the seed: no sampling, so a p-value would
+    # claim evidence nothing measured; a seed-dependent row is still tested (one-sample t-test).
+    best, other = _row("ar", [0.17893] * 3, exact=True), _row("ridge", [0.17894] * 3, exact=True)
+    topology = _row("gru", [0.18, 0.19, 0.2])
+    found = compare_family([best, other, topology], best, "log", 0.05, 0.05, 0.95)
+    assert found[other.key].verdict == "exact" and found[other.key].p_value is None
+    assert found[topology.key].p_value is not None

@@ -58,7 +58,8 @@ def _reading_guide(summary: Summary) -> Bullets:
         f"±{summary.margin:.0%} of the best (a ratio on the log scale) at alpha; 'n.s.' is "
         "neither, which is no evidence of equal quality, and gives the seeds per row a t-test "
         "would need to separate the pair at the observed spread (power 80%); 'untested' means a "
-        "side has fewer than 2 usable seeds.",
+        "side has fewer than 2 usable seeds; two seed-independent rows are compared by value "
+        "only (nothing is sampled to test).",
         "Output-feedback rows are ranked on what a deployed model scores: free running (its own "
         "outputs fed back), or where selected so, with only measured outputs fed back once they "
         "are observed. A one-step figure with measured outputs fed back is shown only where the "
@@ -93,7 +94,8 @@ def _versus(comparison: Comparison) -> str:
         if observed is not None and observed.statistic == 0.0:
             need = "; no difference"
         return f"n.s. (Holm p {fmt.p_value(comparison.adjusted_p)}{need})"
-    return {"best": "best", "untested": "untested"}.get(verdict, fmt.MISSING)
+    return {"best": "best", "untested": "untested",
+            "exact": "both seed-independent: no test"}.get(verdict, fmt.MISSING)
 
 
 def _yes_no(flag: bool | None) -> str:

@@ -55,6 +55,9 @@ def compare_family(
             found[row.key] = Comparison("no data", None)
         elif row.key == reference.key:
             found[row.key] = Comparison("best", None)
+        elif row.exact and reference.exact:
+            # Two seed-independent values: nothing is sampled, so there is nothing to test.
+            found[row.key] = Comparison("exact", None)
         elif (result := pair_test(row, reference, scale, confidence)) is None:
             found[row.key] = Comparison("untested", None)
         else:

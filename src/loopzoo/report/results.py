@@ -43,7 +43,8 @@ class Comparison:
     significant after Holm's correction over the comparisons with that reference);
     ``equivalent`` (not significant and two one-sided tests show the pair inside the stated
     margin); ``not significant`` (neither: no evidence of a difference, and none of equal
-    quality); ``untested`` (fewer than 2 values on a side); ``no data``.
+    quality); ``untested`` (fewer than 2 values on a side); ``exact`` (both
+    seed-independent: compared by value, never tested); ``no data``.
     ``difference`` is row against reference (a ratio of geometric means on the log scale),
     ``adjusted_p`` Holm's, ``seeds_needed`` the seeds per row a t-test would need to separate the
     pair at the observed spread (None: no difference observed, or more than the search limit).
