@@ -489,12 +489,6 @@ def rows(out: Path) -> list[tuple[str, int | None, str]]:
                   for r in all_records(out))
 
 
-def timed(argv: list[str], cwd: Path) -> tuple[subprocess.CompletedProcess[str], float]:
-    tick = time.perf_counter()
-    result = run(argv, cwd)
-    return result, time.perf_counter() - tick
-
-
 @pytest.mark.slow
 def test_line_6_a_refused_config_leaves_the_folder_free(tmp_path: Path) -> None:
     """Line 6: "after `loopzoo train trainer.max_steps=abc out=D`, `loopzoo sweep suite=quick
@@ -614,15 +608,15 @@ def test_line_9_a_finished_sweep_starts_no_worker(tmp_path: Path) -> None:
     out = tmp_path / "out"
     argv = command("sweep", "model=gru,lstm", "seed=0,1", *TINY, "hydra.launcher.n_jobs=2",
                    f"out={out}")
-    first, first_seconds = timed(argv, tmp_path)
+    # What a rerun costs is measured in benchmarks/RESULTS.md ("Harness"); here: that it starts
+    # nothing (no launcher folder, no job line).
+    first = run(argv, tmp_path)
     assert first.returncode == 0 and len(sweep_lines(first.stdout)) == 4, first.stderr
     launches = sorted((out / ".hydra-runs").iterdir())  # one folder per start of the launcher
-    rerun, rerun_seconds = timed(argv, tmp_path)
+    rerun = run(argv, tmp_path)
     assert rerun.returncode == 0, rerun.stderr
     assert "4 already recorded, 0 to run" in rerun.stdout and not sweep_lines(rerun.stdout)
     assert sorted((out / ".hydra-runs").iterdir()) == launches, "the launcher was started"
-    ratio = rerun_seconds / first_seconds
-    assert ratio < 0.5, f"rerun {rerun_seconds:.1f} s against {first_seconds:.1f} s first"
 
 
 def table_rows(markdown: str, kind: str) -> dict[str, list[str]]:
