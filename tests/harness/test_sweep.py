@@ -13,6 +13,7 @@ import loopzoo.engine.training as training
 import loopzoo.harness.baselines as baselines
 import loopzoo.harness.sweep as sweep
 from loopzoo.harness import records, running, state
+from loopzoo.harness.config import compose_job, composer
 from loopzoo.harness.errors import ConfigError, OutDirError
 from loopzoo.harness.sweep import plan_sweep, run_sweep
 
@@ -29,6 +30,10 @@ def test_comma_lists_expand_to_their_product(tmp_path):
     assert {(j.model.name, j.task.name, j.seed) for j in plan.jobs} == {
         (m, t, s) for m in ("gru", "lstm") for t in ("adding", "copy") for s in (1, 2, 3)}
     assert len(set(plan.run_ids)) == 12
+    # Jobs that differ only in their seed are composed once: the same configs as one by one.
+    with composer():
+        for overrides, job in zip(plan.overrides, plan.jobs, strict=True):
+            assert job == compose_job(overrides)
 
 
 def test_the_command_line_narrows_a_suite(tmp_path):

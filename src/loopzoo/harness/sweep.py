@@ -10,6 +10,7 @@ whose baseline records are missing or damaged), so a finished sweep starts no wo
 
 from __future__ import annotations
 
+import copy
 import sys
 import time
 from collections import Counter
@@ -82,16 +83,40 @@ def plan_sweep(overrides: list[str]) -> SweepPlan:
         _check_launcher(base.hydra.launcher)
         combined = parse_overrides(_sweep_lists(base) + list(overrides))
         job_overrides = split_jobs(combined)
-        jobs = []
-        for job in job_overrides:
-            try:
-                jobs.append(compose_job(job))
-            except ConfigError as error:
-                raise ConfigError(f"job {' '.join(job)}: {error}") from None
+        jobs = _compose_jobs(job_overrides)
     outs = {job.out for job in jobs}
     if len(outs) != 1:
         raise ConfigError(f"out must be one directory per sweep, got {', '.join(sorted(outs))}")
     return SweepPlan(job_overrides, jobs, Path(outs.pop()), jobs[0].suite)
+
+
+def _plain_seed(override: str) -> int | None:
+    """The seed of a ``seed=N`` override (N a non-negative integer written out), else None."""
+    key, _, value = override.partition("=")
+    return int(value) if key == "seed" and value.isdigit() else None
+
+
+def _compose_jobs(job_overrides: list[list[str]]) -> list[DictConfig]:
+    """Every job's finished config. Jobs that differ only in a plain ``seed=N`` are composed once
+    and given their seed (nothing in the configs reads the seed), since Hydra's composition is
+    most of a plan's time; any other job is composed as it is."""
+    composed: dict[tuple[str, ...], DictConfig] = {}
+    jobs = []
+    for job in job_overrides:
+        seeds = [seed for seed in map(_plain_seed, job) if seed is not None]
+        rest = [o for o in job if _plain_seed(o) is None]
+        try:
+            if not seeds:
+                jobs.append(compose_job(job))
+                continue
+            if tuple(rest) not in composed:
+                composed[tuple(rest)] = compose_job(rest)
+        except ConfigError as error:
+            raise ConfigError(f"job {' '.join(job)}: {error}") from None
+        finished = copy.deepcopy(composed[tuple(rest)])
+        finished.seed = seeds[-1]
+        jobs.append(finished)
+    return jobs
 
 
 def _remove_stale_temp_files(out: Path) -> None:
