@@ -27,6 +27,7 @@ from pathlib import Path
 
 import pytest
 import torch
+from support.limits import LOAD_BOUND_MB
 
 import loopzoo
 from loopzoo.serve.streaming import StreamRunner
@@ -225,7 +226,7 @@ def test_line_2_sizes_are_checked_before_anything_is_built(
     path = inflate(tmp_path)
     message, extra_mb = fresh_load(path)
     assert message == expected.format(path=path)
-    assert extra_mb < 200, f"loading took {extra_mb} MB more than importing loopzoo"
+    assert extra_mb < LOAD_BOUND_MB, f"loading took {extra_mb} MB more than importing loopzoo"
 
 
 # The command line -----------------------------------------------------------------------------

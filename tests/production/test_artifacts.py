@@ -14,6 +14,7 @@ import pytest
 import torch
 from safetensors.torch import load as safetensors_load
 from safetensors.torch import save as safetensors_save
+from support.limits import LOAD_BOUND_MB
 
 import loopzoo
 from loopzoo.serve.artifacts import DESCRIPTION_FILE, WEIGHTS_FILE, ArtifactError, read_description
@@ -309,7 +310,7 @@ def test_a_huge_hidden_size_in_model_json_is_refused_without_building_it(artifac
     _edit_description(artifact, options={"input_size": 3, "output_size": 2, "hidden_size": 30000})
     message, extra_mb = fresh_load(artifact)
     assert "expects float32[30000" in message and "weights.safetensors (header)" in message
-    assert extra_mb < 200, f"loading took {extra_mb} MB more before refusing"
+    assert extra_mb < LOAD_BOUND_MB, f"loading took {extra_mb} MB more before refusing"
 
 
 def test_a_consistent_edit_of_options_and_tensors_is_refused_by_the_weights_header(artifact,
@@ -325,7 +326,7 @@ def test_a_consistent_edit_of_options_and_tensors_is_refused_by_the_weights_head
     assert description["tensors"] != read_description(artifact)["tensors"]
     message, extra_mb = fresh_load(artifact)
     assert "field 'tensors' expects float32[30000" in message
-    assert extra_mb < 200, f"loading took {extra_mb} MB more before refusing"
+    assert extra_mb < LOAD_BOUND_MB, f"loading took {extra_mb} MB more before refusing"
 
 
 def test_a_checkpoint_with_a_huge_size_is_refused_before_building(build, tmp_path, fresh_load):
@@ -336,7 +337,7 @@ def test_a_checkpoint_with_a_huge_size_is_refused_before_building(build, tmp_pat
                             "options": {**model.options, "hidden_size": 40000}}}, path)
     message, extra_mb = fresh_load(path)
     assert "expects float32[40000" in message
-    assert extra_mb < 200, f"loading took {extra_mb} MB more before refusing"
+    assert extra_mb < LOAD_BOUND_MB, f"loading took {extra_mb} MB more before refusing"
 
 
 @pytest.mark.parametrize(
