@@ -31,7 +31,7 @@ def test_report_reads_real_sweep_records(tmp_path):
     # Real records carry every field the report reads: nothing is skipped or missing.
     assert "Skipped files" not in markdown
     assert "Nothing: every run finished ok with its metric, cost and gradient reach." in markdown
-    assert "Pick " in markdown or "Only " in markdown
+    assert "Ship " in markdown or "Only " in markdown  # a verdict names what to ship
     rows = list(csv.DictReader(io.StringIO((out / "report.csv").read_text())))
     topologies = {r["row"]: r for r in rows if r["kind"] == "model"}
     assert set(topologies) == {"hidden-feedback", "gru"}
