@@ -36,6 +36,13 @@ def test_comma_lists_expand_to_their_product(tmp_path):
             assert job == compose_job(overrides)
 
 
+def test_a_config_that_reads_the_seed_is_composed_per_seed(tmp_path):
+    plan = plan_sweep(["model=gru", "seed=1,2", f"out={tmp_path}",
+                       "+trainer.default_root_dir=" + str(tmp_path) + "/s${seed}"])
+    assert [job.trainer.default_root_dir for job in plan.jobs] == [f"{tmp_path}/s1",
+                                                                   f"{tmp_path}/s2"]
+
+
 def test_the_command_line_narrows_a_suite(tmp_path):
     plan = plan_sweep(["suite=quick", "model=gru", "seed=5", f"out={tmp_path}"])
     assert {j.model.name for j in plan.jobs} == {"gru"} and {j.seed for j in plan.jobs} == {5}

@@ -17,12 +17,19 @@ from collections import Counter
 from contextlib import nullcontext
 from dataclasses import dataclass
 from pathlib import Path
+from typing import Any
 
 from omegaconf import DictConfig, OmegaConf
 
 from loopzoo import _checks as checks
 from loopzoo.harness import records, runids, running, state, tuning
-from loopzoo.harness.config import compose_job, composer, parse_overrides, plain_task_options
+from loopzoo.harness.config import (
+    compose_job,
+    composer,
+    finish_config,
+    parse_overrides,
+    plain_task_options,
+)
 from loopzoo.harness.errors import ConfigError, as_config_errors
 from loopzoo.harness.hydra_private import run_multirun, split_jobs
 
@@ -96,24 +103,43 @@ def _plain_seed(override: str) -> int | None:
     return int(value) if key == "seed" and value.isdigit() else None
 
 
+def _reads_seed(raw: DictConfig) -> bool:
+    """Whether any value of the unresolved config interpolates the seed, e.g.
+    ``out=runs/s${seed}``: then each seed needs a composition of its own."""
+    pending: list[Any] = [OmegaConf.to_container(raw, resolve=False)]
+    while pending:
+        node = pending.pop()
+        for value in node.values() if isinstance(node, dict) else node:
+            if isinstance(value, dict | list):
+                pending.append(value)
+            elif isinstance(value, str) and "${" in value and "seed" in value:
+                return True
+    return False
+
+
 def _compose_jobs(job_overrides: list[list[str]]) -> list[DictConfig]:
     """Every job's finished config. Jobs that differ only in a plain ``seed=N`` are composed once
-    and given their seed (nothing in the configs reads the seed), since Hydra's composition is
-    most of a plan's time; any other job is composed as it is."""
-    composed: dict[tuple[str, ...], DictConfig] = {}
+    and given their seed, since Hydra's composition is most of a plan's time, unless the config
+    interpolates the seed somewhere; any other job is composed as it is."""
+    shared: dict[tuple[str, ...], DictConfig | None] = {}
     jobs = []
     for job in job_overrides:
         seeds = [seed for seed in map(_plain_seed, job) if seed is not None]
-        rest = [o for o in job if _plain_seed(o) is None]
+        rest = tuple(o for o in job if _plain_seed(o) is None)
         try:
-            if not seeds:
+            if seeds and rest not in shared:
+                raw = compose_job(list(rest), with_hydra=True)
+                OmegaConf.set_struct(raw, False)
+                raw.pop("hydra")  # the launcher's node, as compose_job leaves it out
+                shared[rest] = (None if _reads_seed(raw) else
+                                finish_config(raw, plain_task_options(list(rest))))
+            template = shared.get(rest) if seeds else None
+            if template is None:
                 jobs.append(compose_job(job))
                 continue
-            if tuple(rest) not in composed:
-                composed[tuple(rest)] = compose_job(rest)
         except ConfigError as error:
             raise ConfigError(f"job {' '.join(job)}: {error}") from None
-        finished = copy.deepcopy(composed[tuple(rest)])
+        finished = copy.deepcopy(template)
         finished.seed = seeds[-1]
         jobs.append(finished)
     return jobs
