@@ -110,6 +110,25 @@ def test_a_trial_that_raises_is_marked_failed_and_does_not_count(tmp_path):
     assert len(calls) == 2
 
 
+def test_a_trial_told_after_another_job_listed_it_as_running_stays_as_told(tmp_path):
+    """Seen in a two-worker quick sweep: job B listed the running trials, job A told its trial
+    and let go of the trial's lock, then B found that lock free and marked the finished trial
+    failed, which Optuna refuses (UpdateFinishedTrialError) and which failed B's run."""
+    from optuna.trial import TrialState
+
+    from loopzoo.harness import tuning as tuning_module
+
+    cfg = job(tmp_path, "protocol.trials=2")
+    settings = read_tuning(cfg)
+    study = tuning_module._load_study(settings)
+    trial = study.ask()
+    listed = study.get_trials(deepcopy=True, states=(TrialState.RUNNING,))  # job B's listing
+    study.tell(trial, 1.0)  # job A; its lock is free again
+    study.get_trials = lambda deepcopy=False, states=None: listed
+    tuning_module._fail_stale(study, tmp_path)
+    assert tuning_module._load_study(settings).trials[0].state == TrialState.COMPLETE
+
+
 @pytest.mark.parametrize(("overrides", "message"), [
     (["protocol.trials=0"], r"protocol\.trials = 0 is invalid; accepted: an integer >= 1"),
     (["protocol.trials=2.5"], r"protocol\.trials = 2.5 is invalid"),

@@ -21,6 +21,7 @@ trial order), so a study that was extended never gives one topology more trials 
 
 from __future__ import annotations
 
+import contextlib
 import hashlib
 import json
 import os
@@ -249,12 +250,16 @@ def _trial_lock(out: Path, study: str, number: int) -> Path:
 
 def _fail_stale(study: Any, out: Path) -> None:
     """Mark failed every running trial whose process is gone (its lock is free)."""
+    from optuna.exceptions import UpdateFinishedTrialError
     from optuna.trial import TrialState
 
     for trial in study.get_trials(deepcopy=False, states=(TrialState.RUNNING,)):
         with state.file_lock(_trial_lock(out, study.study_name, trial.number),
                              wait=False) as free:
-            if free:
+            if not free:
+                continue
+            # Its owner may have told it and let go of its lock after the listing: not stale.
+            with contextlib.suppress(UpdateFinishedTrialError):
                 study._storage.set_trial_state_values(trial._trial_id, state=TrialState.FAIL)
 
 
