@@ -143,10 +143,13 @@ def test_without_numba_the_plain_path_runs_and_warns_once() -> None:
 
 @pytest.mark.parametrize("nonlinearity", ["tanh", "relu"])
 @pytest.mark.parametrize("compiled", [True, False])
-def test_teacher_forced_layer_equals_its_autograd_formula(nonlinearity: str, compiled: bool):
-    """The row-blocked teacher-forced pass (several blocks here) against y = V f(X W^T + b) + c
-    through torch autograd, float64: output and every gradient."""
-    from loopzoo.topologies._teacher_forced import teacher_forced_layer
+@pytest.mark.parametrize("kept", [True, False])
+def test_teacher_forced_layer_equals_its_autograd_formula(nonlinearity: str, compiled: bool,
+                                                          kept: bool):
+    """The row-blocked teacher-forced pass (several blocks here), with h kept in a workspace or
+    recomputed, against y = V f(X W^T + b) + c through torch autograd, float64: output and
+    every gradient."""
+    from loopzoo.topologies._teacher_forced import Workspace, teacher_forced_layer
 
     torch.manual_seed(4)
     rows, features, hidden, outputs = 20_000, 5, 4, 3  # blocks of 8192 rows at this width
@@ -157,12 +160,39 @@ def test_teacher_forced_layer_equals_its_autograd_formula(nonlinearity: str, com
     act = torch.relu if nonlinearity == "relu" else torch.tanh
     want = act(inputs @ weight.t() + bias) @ readout_w.t() + readout_b
     with _kernels.forced(compiled):
-        got = teacher_forced_layer(*args, nonlinearity=nonlinearity)
+        got = teacher_forced_layer(*args, nonlinearity=nonlinearity,
+                                   workspace=Workspace() if kept else None)
     upstream = torch.randn_like(want)
     for g, w in zip(torch.autograd.grad(got, args, upstream),
                     torch.autograd.grad(want, args, upstream), strict=True):
         torch.testing.assert_close(g, w, atol=1e-10, rtol=1e-8)
     torch.testing.assert_close(got, want, atol=1e-10, rtol=1e-8)
+
+
+def test_a_pass_whose_workspace_was_reused_recomputes_its_activations():
+    """Two forward passes through one workspace, then the first pass's backward: its kept h was
+    overwritten by the second pass, so it recomputes h; gradients equal autograd's (float64)."""
+    import copy
+    import pickle
+
+    from loopzoo.topologies._teacher_forced import Workspace, teacher_forced_layer
+
+    torch.manual_seed(5)
+    weights = [t.double().requires_grad_() for t in (torch.randn(4, 5), torch.randn(4),
+                                                      torch.randn(3, 4), torch.randn(3))]
+    first, second = torch.randn(300, 5).double(), torch.randn(300, 5).double()
+    workspace = Workspace()
+    got = teacher_forced_layer(first, *weights, nonlinearity="tanh", workspace=workspace)
+    teacher_forced_layer(second, *weights, nonlinearity="tanh", workspace=workspace)
+    weight, bias, readout_w, readout_b = weights
+    want = torch.tanh(first @ weight.t() + bias) @ readout_w.t() + readout_b
+    upstream = torch.randn_like(want)
+    for g, w in zip(torch.autograd.grad(got, weights, upstream),
+                    torch.autograd.grad(want, weights, upstream), strict=True):
+        torch.testing.assert_close(g, w, atol=1e-10, rtol=1e-8)
+    # A copied or pickled model does not carry the buffer along.
+    for clone in (copy.deepcopy(workspace), pickle.loads(pickle.dumps(workspace))):
+        assert clone._buffer is None and clone.generation == 0
 
 
 def test_compiled_equals_plain_with_a_delay_per_output_channel() -> None:

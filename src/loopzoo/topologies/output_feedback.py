@@ -47,7 +47,7 @@ from loopzoo.topologies._base import (
 from loopzoo.topologies._feedback_loop import feedback_scan
 from loopzoo.topologies._options import NONLINEARITY, Option, choice
 from loopzoo.topologies._search import RealRange
-from loopzoo.topologies._teacher_forced import teacher_forced_layer
+from loopzoo.topologies._teacher_forced import Workspace, teacher_forced_layer
 
 __all__ = ["OutputFeedback"]
 
@@ -148,6 +148,7 @@ class OutputFeedback(RecurrentTopology):
         self.weight_oh = nn.Parameter(torch.empty(self.hidden_size, self.output_size))
         self.bias = nn.Parameter(torch.empty(self.hidden_size))
         self.readout = make_readout(self.hidden_size, self.output_size)
+        self._workspace = Workspace()  # the teacher-forced pass's activations, reused each step
         uniform_init(self, self.hidden_size)
 
     def state_sizes(self) -> tuple[int, ...]:
@@ -271,10 +272,10 @@ class OutputFeedback(RecurrentTopology):
             pre = torch.addmm(self.bias, inputs, weight.t())  # (B*T, H)
             h = torch.relu(pre) if nonlinearity == "relu" else batched_tanh(pre)
             y = self.readout(h)
-        else:  # row blocks, no (B*T, H) temporaries (_teacher_forced.py)
+        else:  # row blocks, h kept in the layer's workspace (_teacher_forced.py)
             y = teacher_forced_layer(
                 inputs, weight, self.bias, self.readout.weight, self.readout.bias,
-                nonlinearity=nonlinearity,
+                nonlinearity=nonlinearity, workspace=self._workspace,
             )
         y = y.view(batch, steps, out)
         # The final line: the values of the last D valid steps, newest first.
