@@ -18,6 +18,10 @@ OPTIMIZERS.register("adam")((torch.optim.Adam, frozenset({"betas", "eps"})))
 OPTIMIZERS.register("adamw")((torch.optim.AdamW, frozenset({"betas", "eps"})))
 OPTIMIZERS.register("sgd")((torch.optim.SGD, frozenset({"momentum", "nesterov"})))
 OPTIMIZERS.register("rmsprop")((torch.optim.RMSprop, frozenset({"alpha", "eps", "momentum"})))
+# torch has one-kernel ("fused") CPU updates for these: at the small models of the built-in
+# suites the one-update-per-tensor default cost up to a quarter of a training step
+# (benchmarks/RESULTS.md, "Optimiser step").
+_FUSED = frozenset({"adam", "adamw", "sgd"})
 
 
 def optimizer_factory(
@@ -42,4 +46,6 @@ def optimizer_factory(
     settings = dict(extra)
     if "betas" in settings:
         settings["betas"] = tuple(settings["betas"])
+    if name in _FUSED:
+        settings["fused"] = True
     return functools.partial(cls, lr=lr, weight_decay=weight_decay, **settings)
