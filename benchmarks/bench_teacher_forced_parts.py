@@ -1,0 +1,93 @@
+"""Where output feedback's teacher-forced train step spends its time, against the least it could.
+
+At equal parameter counts (widths from loopzoo.width_for_budget, input 32, output 16) this times,
+interleaved in one process on one torch thread: hidden-feedback's BPTT train step, output
+feedback's teacher-forced train step, and each operation of the teacher-forced layer on its own
+whole (B*T, H) tensors with no Python around it: the five matrix products of the forward and
+backward pass and the three passes over (B*T, H) (activation, its derivative, the bias
+gradient). The sum of those operations is a floor for the teacher-forced step on this machine
+and BLAS; floor / BPTT is the best ratio the teacher-forced step could reach without a faster
+matrix product.
+
+    .venv/bin/python benchmarks/bench_teacher_forced_parts.py
+    .venv/bin/python benchmarks/bench_teacher_forced_parts.py --shape 32x256 --rounds 9
+"""
+
+from __future__ import annotations
+
+import argparse
+import statistics
+from collections.abc import Callable
+
+import torch
+from bench_topologies import Row, _interleaved
+
+import loopzoo
+from loopzoo.topologies._teacher_forced import _activate_, _through_activation_
+
+__all__ = ["main"]
+
+_INPUTS, _OUTPUTS = 32, 16
+
+
+def _layer_parts(rows: int, hidden: int) -> dict[str, Callable[[], object]]:
+    """Each operation of the teacher-forced layer on whole (rows, hidden) tensors."""
+    features = _INPUTS + _OUTPUTS  # inputs beside the fed-back targets
+    x = torch.randn(rows, features)
+    weight, bias = torch.randn(hidden, features) * 0.1, torch.zeros(hidden)
+    readout_w, readout_b = torch.randn(_OUTPUTS, hidden) * 0.03, torch.zeros(_OUTPUTS)
+    h, grad_a = torch.empty(rows, hidden), torch.empty(rows, hidden)
+    y, grad_y = torch.empty(rows, _OUTPUTS), torch.randn(rows, _OUTPUTS)
+    grad_w, grad_readout_w, grad_b = (torch.zeros_like(t) for t in (weight, readout_w, bias))
+    torch.addmm(bias, x, weight.t(), out=h)
+    _activate_(h, False)
+    return {
+        "x W^T + b": lambda: torch.addmm(bias, x, weight.t(), out=h),
+        "tanh": lambda: _activate_(h, False),
+        "h V^T + c": lambda: torch.addmm(readout_b, h, readout_w.t(), out=y),
+        "dy V": lambda: torch.mm(grad_y, readout_w, out=grad_a),
+        "dV += dy^T h": lambda: grad_readout_w.addmm_(grad_y.t(), h),
+        "tanh'": lambda: _through_activation_(grad_a, h, False),
+        "dW += da^T x": lambda: grad_w.addmm_(grad_a.t(), x),
+        "db += sum da": lambda: grad_b.add_(grad_a.sum(0)),
+    }
+
+
+def main(argv: list[str] | None = None) -> None:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--shape", default="1x2048", help="BxT, e.g. 32x256")
+    parser.add_argument("--budgets", type=int, nargs="+", default=[5_000, 20_000, 100_000])
+    parser.add_argument("--rounds", type=int, default=7)
+    args = parser.parse_args(argv)
+    batch, steps = (int(v) for v in args.shape.lower().split("x"))
+    torch.set_num_threads(1)
+    torch.manual_seed(0)
+    x, y = torch.randn(batch, steps, _INPUTS), torch.randn(batch, steps, _OUTPUTS)
+    print(f"B={batch}, T={steps}, input {_INPUTS}, output {_OUTPUTS}; medians of "
+          f"{args.rounds} interleaved rounds, ms")
+    for budget in args.budgets:
+        models = {name: loopzoo.create(
+            name, input_size=_INPUTS, output_size=_OUTPUTS,
+            hidden_size=loopzoo.width_for_budget(name, params=budget, input_size=_INPUTS,
+                                                 output_size=_OUTPUTS))
+            for name in ("hidden-feedback", "output-feedback")}
+        parts = _layer_parts(batch * steps, models["output-feedback"].hidden_size)
+        jobs = {"BPTT step": Row(models["hidden-feedback"], 1).train_step(x, y),
+                "teacher-forced step": Row(models["output-feedback"], 1, targets=y,
+                                           teacher_forcing=1.0).train_step(x, y),
+                **parts}
+        times = {name: statistics.median(t) * 1e3
+                 for name, t in _interleaved(jobs, args.rounds).items()}
+        floor = sum(times[name] for name in parts)
+        bptt, forced = times["BPTT step"], times["teacher-forced step"]
+        print(f"\n{budget:,} parameters, hidden {models['hidden-feedback'].hidden_size} / "
+              f"{models['output-feedback'].hidden_size}")
+        for name in parts:
+            print(f"  {name:<14} {times[name]:8.2f}")
+        print(f"  {'sum (floor)':<14} {floor:8.2f}  floor / BPTT {floor / bptt:.2f}")
+        print(f"  {'teacher-forced':<14} {forced:8.2f}  teacher-forced / BPTT {forced / bptt:.2f}")
+        print(f"  {'BPTT':<14} {bptt:8.2f}")
+
+
+if __name__ == "__main__":
+    main()
