@@ -7,7 +7,7 @@ whole (B*T, H) tensors with no Python around it: the five matrix products of the
 backward pass and the three passes over (B*T, H) (activation, its derivative, the bias
 gradient). The sum of those operations is a floor for the teacher-forced step on this machine
 and BLAS; floor / BPTT is the best ratio the teacher-forced step could reach without a faster
-matrix product.
+matrix product. For scale, the script also prints the rate of a square 1024 product.
 
     .venv/bin/python benchmarks/bench_teacher_forced_parts.py
     .venv/bin/python benchmarks/bench_teacher_forced_parts.py --shape 32x256 --rounds 9
@@ -28,6 +28,21 @@ from loopzoo.topologies._teacher_forced import _activate_, _through_activation_
 __all__ = ["main"]
 
 _INPUTS, _OUTPUTS = 32, 16
+
+
+def _product_flops(rows: int, hidden: int) -> dict[str, float]:
+    """Floating-point operations of each matrix product of the layer."""
+    features = _INPUTS + _OUTPUTS
+    wide, narrow = 2.0 * rows * features * hidden, 2.0 * rows * hidden * _OUTPUTS
+    return {"x W^T + b": wide, "h V^T + c": narrow, "dy V": narrow, "dV += dy^T h": narrow,
+            "dW += da^T x": wide}
+
+
+def _square_rate(rounds: int) -> float:
+    """GFLOP/s of a 1024 x 1024 by 1024 x 1024 product on one thread."""
+    a, b, out = torch.randn(1024, 1024), torch.randn(1024, 1024), torch.empty(1024, 1024)
+    times = _interleaved({"square": lambda: torch.mm(a, b, out=out)}, rounds)["square"]
+    return 2.0 * 1024**3 / statistics.median(times) / 1e9
 
 
 def _layer_parts(rows: int, hidden: int) -> dict[str, Callable[[], object]]:
@@ -64,7 +79,8 @@ def main(argv: list[str] | None = None) -> None:
     torch.manual_seed(0)
     x, y = torch.randn(batch, steps, _INPUTS), torch.randn(batch, steps, _OUTPUTS)
     print(f"B={batch}, T={steps}, input {_INPUTS}, output {_OUTPUTS}; medians of "
-          f"{args.rounds} interleaved rounds, ms")
+          f"{args.rounds} interleaved rounds, ms; a square 1024 product runs at "
+          f"{_square_rate(args.rounds):.0f} GFLOP/s")
     for budget in args.budgets:
         models = {name: loopzoo.create(
             name, input_size=_INPUTS, output_size=_OUTPUTS,
@@ -82,8 +98,10 @@ def main(argv: list[str] | None = None) -> None:
         bptt, forced = times["BPTT step"], times["teacher-forced step"]
         print(f"\n{budget:,} parameters, hidden {models['hidden-feedback'].hidden_size} / "
               f"{models['output-feedback'].hidden_size}")
+        flops = _product_flops(batch * steps, models["output-feedback"].hidden_size)
         for name in parts:
-            print(f"  {name:<14} {times[name]:8.2f}")
+            rate = f"  {flops[name] / times[name] / 1e6:5.0f} GFLOP/s" if name in flops else ""
+            print(f"  {name:<14} {times[name]:8.2f}{rate}")
         print(f"  {'sum (floor)':<14} {floor:8.2f}  floor / BPTT {floor / bptt:.2f}")
         print(f"  {'teacher-forced':<14} {forced:8.2f}  teacher-forced / BPTT {forced / bptt:.2f}")
         print(f"  {'BPTT':<14} {bptt:8.2f}")
