@@ -1,13 +1,14 @@
-"""Where output feedback's teacher-forced train step spends its time, against the least it could.
+"""Where output feedback's teacher-forced train step spends its time, beside its arithmetic alone.
 
 At equal parameter counts (widths from loopzoo.width_for_budget, input 32, output 16) this times,
 interleaved in one process on one torch thread: hidden-feedback's BPTT train step, output
 feedback's teacher-forced train step, and each operation of the teacher-forced layer on its own
 whole (B*T, H) tensors with no Python around it: the five matrix products of the forward and
 backward pass and the three passes over (B*T, H) (activation, its derivative, the bias
-gradient). The sum of those operations is a floor for the teacher-forced step on this machine
-and BLAS; floor / BPTT is the best ratio the teacher-forced step could reach without a faster
-matrix product. For scale, the script also prints the rate of a square 1024 product.
+gradient), with each product's rate in GFLOP/s beside a square 1024 product's for scale. The
+sum of those operations is what the layer's arithmetic costs on whole tensors; sum / BPTT shows
+how far the step's arithmetic alone is from a ratio bar (at large widths the row-blocked layer
+runs below that sum, its blocks staying in cache).
 
     .venv/bin/python benchmarks/bench_teacher_forced_parts.py
     .venv/bin/python benchmarks/bench_teacher_forced_parts.py --shape 32x256 --rounds 9
@@ -30,14 +31,6 @@ __all__ = ["main"]
 _INPUTS, _OUTPUTS = 32, 16
 
 
-def _product_flops(rows: int, hidden: int) -> dict[str, float]:
-    """Floating-point operations of each matrix product of the layer."""
-    features = _INPUTS + _OUTPUTS
-    wide, narrow = 2.0 * rows * features * hidden, 2.0 * rows * hidden * _OUTPUTS
-    return {"x W^T + b": wide, "h V^T + c": narrow, "dy V": narrow, "dV += dy^T h": narrow,
-            "dW += da^T x": wide}
-
-
 def _square_rate(rounds: int) -> float:
     """GFLOP/s of a 1024 x 1024 by 1024 x 1024 product on one thread."""
     a, b, out = torch.randn(1024, 1024), torch.randn(1024, 1024), torch.empty(1024, 1024)
@@ -45,8 +38,9 @@ def _square_rate(rounds: int) -> float:
     return 2.0 * 1024**3 / statistics.median(times) / 1e9
 
 
-def _layer_parts(rows: int, hidden: int) -> dict[str, Callable[[], object]]:
-    """Each operation of the teacher-forced layer on whole (rows, hidden) tensors."""
+def _layer_parts(rows: int, hidden: int) -> dict[str, tuple[Callable[[], object], float]]:
+    """Each operation of the teacher-forced layer on whole (rows, hidden) tensors, with its
+    floating-point operations (0 for the passes that are not matrix products)."""
     features = _INPUTS + _OUTPUTS  # inputs beside the fed-back targets
     x = torch.randn(rows, features)
     weight, bias = torch.randn(hidden, features) * 0.1, torch.zeros(hidden)
@@ -56,15 +50,16 @@ def _layer_parts(rows: int, hidden: int) -> dict[str, Callable[[], object]]:
     grad_w, grad_readout_w, grad_b = (torch.zeros_like(t) for t in (weight, readout_w, bias))
     torch.addmm(bias, x, weight.t(), out=h)
     _activate_(h, False)
+    wide, narrow = 2.0 * rows * features * hidden, 2.0 * rows * hidden * _OUTPUTS
     return {
-        "x W^T + b": lambda: torch.addmm(bias, x, weight.t(), out=h),
-        "tanh": lambda: _activate_(h, False),
-        "h V^T + c": lambda: torch.addmm(readout_b, h, readout_w.t(), out=y),
-        "dy V": lambda: torch.mm(grad_y, readout_w, out=grad_a),
-        "dV += dy^T h": lambda: grad_readout_w.addmm_(grad_y.t(), h),
-        "tanh'": lambda: _through_activation_(grad_a, h, False),
-        "dW += da^T x": lambda: grad_w.addmm_(grad_a.t(), x),
-        "db += sum da": lambda: grad_b.add_(grad_a.sum(0)),
+        "x W^T + b": (lambda: torch.addmm(bias, x, weight.t(), out=h), wide),
+        "tanh": (lambda: _activate_(h, False), 0.0),
+        "h V^T + c": (lambda: torch.addmm(readout_b, h, readout_w.t(), out=y), narrow),
+        "dy V": (lambda: torch.mm(grad_y, readout_w, out=grad_a), narrow),
+        "dV += dy^T h": (lambda: grad_readout_w.addmm_(grad_y.t(), h), narrow),
+        "tanh'": (lambda: _through_activation_(grad_a, h, False), 0.0),
+        "dW += da^T x": (lambda: grad_w.addmm_(grad_a.t(), x), wide),
+        "db += sum da": (lambda: grad_b.add_(grad_a.sum(0)), 0.0),
     }
 
 
@@ -91,18 +86,17 @@ def main(argv: list[str] | None = None) -> None:
         jobs = {"BPTT step": Row(models["hidden-feedback"], 1).train_step(x, y),
                 "teacher-forced step": Row(models["output-feedback"], 1, targets=y,
                                            teacher_forcing=1.0).train_step(x, y),
-                **parts}
+                **{name: run for name, (run, _) in parts.items()}}
         times = {name: statistics.median(t) * 1e3
                  for name, t in _interleaved(jobs, args.rounds).items()}
-        floor = sum(times[name] for name in parts)
+        arithmetic = sum(times[name] for name in parts)
         bptt, forced = times["BPTT step"], times["teacher-forced step"]
         print(f"\n{budget:,} parameters, hidden {models['hidden-feedback'].hidden_size} / "
               f"{models['output-feedback'].hidden_size}")
-        flops = _product_flops(batch * steps, models["output-feedback"].hidden_size)
-        for name in parts:
-            rate = f"  {flops[name] / times[name] / 1e6:5.0f} GFLOP/s" if name in flops else ""
+        for name, (_, flops) in parts.items():
+            rate = f"  {flops / times[name] / 1e6:5.0f} GFLOP/s" if flops else ""
             print(f"  {name:<14} {times[name]:8.2f}{rate}")
-        print(f"  {'sum (floor)':<14} {floor:8.2f}  floor / BPTT {floor / bptt:.2f}")
+        print(f"  {'sum':<14} {arithmetic:8.2f}  sum / BPTT {arithmetic / bptt:.2f}")
         print(f"  {'teacher-forced':<14} {forced:8.2f}  teacher-forced / BPTT {forced / bptt:.2f}")
         print(f"  {'BPTT':<14} {bptt:8.2f}")
 

@@ -36,6 +36,8 @@ def main(argv: list[str] | None = None) -> None:
     parser.add_argument("--rounds", type=int, default=5)
     args = parser.parse_args(argv)
     many = cores()
+    if many < 2:
+        parser.error("this process may use one core only; there is no second thread to compare")
     torch.manual_seed(0)
     print(f"| topology | parameters | B x T | 1 thread ms/step | {many} threads ms/step | ratio |")
     print("| --- | ---: | --- | ---: | ---: | ---: |")
